@@ -1,0 +1,27 @@
+package dev.rungbook.cli;
+
+import java.util.concurrent.Callable;
+import picocli.CommandLine;
+import picocli.CommandLine.Command;
+
+/** The {@code rungbook} command line: {@code java -jar rungbook-all.jar COMMAND ...}. */
+@Command(name = "rungbook", mixinStandardHelpOptions = true, version = "rungbook 0.1.0",
+        description = "Quantization experiments for Java: a Jupyter kernel, notebooks and a batch command line.",
+        subcommands = {DemoCommand.class})
+public final class Main implements Callable<Integer> {
+    /** Runs the command line and exits with its code (0 ok, 1 failure, 2 usage error). */
+    public static void main(String[] args) {
+        System.exit(run(args));
+    }
+
+    /** Runs the command line and returns its exit code. */
+    public static int run(String... args) {
+        return new CommandLine(new Main()).execute(args);
+    }
+
+    @Override
+    public Integer call() {
+        new CommandLine(this).usage(System.out);
+        return 2;
+    }
+}
