@@ -1,0 +1,101 @@
+package dev.rungbook.nn;
+
+import dev.rungbook.internal.TensorAccess;
+import dev.rungbook.tensor.DType;
+import dev.rungbook.tensor.Tensor;
+import java.util.Arrays;
+
+/**
+ * A fully connected layer {@code y = x W^T + b} with weight shaped {@code [out, in]} (the usual checkpoint layout) and
+ * bias shaped {@code [out]}.
+ */
+public final class Linear implements Layer {
+    private final String name;
+    private final Tensor weight;
+    private final Tensor bias;
+
+    /**
+     * @param name the layer's name (checkpoint tensors are {@code name + ".weight"} and {@code name + ".bias"})
+     * @param weight shaped [out, in]
+     * @param bias shaped [out]
+     * @throws IllegalArgumentException if the shapes do not fit
+     */
+    public Linear(String name, Tensor weight, Tensor bias) {
+        if (weight.rank() != 2) {
+            throw new IllegalArgumentException(name + ": weight must be [out, in], got "
+                    + Arrays.toString(weight.shape()));
+        }
+        if (bias.rank() != 1 || bias.dim(0) != weight.dim(0)) {
+            throw new IllegalArgumentException(name + ": bias shape " + Arrays.toString(bias.shape())
+                    + " does not fit weight shape " + Arrays.toString(weight.shape()));
+        }
+        this.name = name;
+        this.weight = weight;
+        this.bias = bias;
+    }
+
+    @Override
+    public String name() {
+        return name;
+    }
+
+    /** The weight, shaped [out, in]. */
+    public Tensor weight() {
+        return weight;
+    }
+
+    /** The bias, shaped [out]. */
+    public Tensor bias() {
+        return bias;
+    }
+
+    /** Input features. */
+    public int inFeatures() {
+        return weight.dim(1);
+    }
+
+    /** Output features. */
+    public int outFeatures() {
+        return weight.dim(0);
+    }
+
+    /** The same layer with another weight of the same shape (for example a dequantized one). */
+    public Linear withWeight(Tensor newWeight) {
+        if (!Arrays.equals(newWeight.shape(), weight.shape())) {
+            throw new IllegalArgumentException(name + ": new weight shape " + Arrays.toString(newWeight.shape())
+                    + " differs from " + Arrays.toString(weight.shape()));
+        }
+        return new Linear(name, newWeight, bias);
+    }
+
+    /** The same layer with another bias of the same shape. */
+    public Linear withBias(Tensor newBias) {
+        return new Linear(name, weight, newBias);
+    }
+
+    @Override
+    public Tensor forward(Tensor batch) {
+        int in = inFeatures();
+        int out = outFeatures();
+        if (batch.rank() != 2 || batch.dim(1) != in) {
+            throw new IllegalArgumentException(name + ": input shape " + Arrays.toString(batch.shape())
+                    + " does not fit weight shape " + Arrays.toString(weight.shape()) + " (expected [N, " + in + "])");
+        }
+        int n = batch.dim(0);
+        float[] y = new float[n * out];
+        Dense.matmulTransposedB(TensorAccess.data(batch), TensorAccess.data(weight), y, n, in, out);
+        float[] b = TensorAccess.data(bias);
+        for (int i = 0; i < n; i++) {
+            int row = i * out;
+            for (int o = 0; o < out; o++) {
+                y[row + o] += b[o];
+            }
+        }
+        return TensorAccess.wrap(y, new int[] {n, out}, DType.F32, null);
+    }
+
+    @Override
+    public String toString() {
+        return "Linear " + name + " " + inFeatures() + " -> " + outFeatures();
+    }
+}
