@@ -1,6 +1,8 @@
 package dev.rungbook.nn;
 
+import dev.rungbook.io.Checkpoint;
 import dev.rungbook.tensor.Tensor;
+import java.nio.file.Path;
 import java.util.Arrays;
 
 /**
@@ -22,6 +24,28 @@ public record Dataset(Tensor inputs, int[] labels) {
                 throw new IllegalArgumentException("dataset: label " + labels[i] + " at sample " + i
                         + " is negative");
             }
+        }
+    }
+
+    /**
+     * Loads a dataset from a checkpoint file (for example an {@code .npz}) holding tensors {@code inputs} and
+     * {@code labels} (labels stored as integers or integral floats).
+     */
+    public static Dataset load(Path file) {
+        try (Checkpoint c = Checkpoint.open(file)) {
+            Tensor x = c.tensor("inputs");
+            Tensor y = c.tensor("labels");
+            float[] xv = x.toFloatArray();
+            float[] yv = y.toFloatArray();
+            int[] labels = new int[yv.length];
+            for (int i = 0; i < yv.length; i++) {
+                if (yv[i] != Math.rint(yv[i])) {
+                    throw new IllegalArgumentException(file + ": tensor 'labels': value " + yv[i] + " at index " + i
+                            + " is not an integer");
+                }
+                labels[i] = (int) yv[i];
+            }
+            return new Dataset(Tensor.of(xv, x.shape()).withName("inputs"), labels);
         }
     }
 

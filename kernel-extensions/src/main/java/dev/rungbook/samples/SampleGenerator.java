@@ -1,0 +1,124 @@
+package dev.rungbook.samples;
+
+import dev.rungbook.io.Checkpoint;
+import dev.rungbook.nn.Dataset;
+import dev.rungbook.nn.Network;
+import dev.rungbook.nn.Trainer;
+import dev.rungbook.progress.Progress;
+import dev.rungbook.tensor.DType;
+import dev.rungbook.tensor.Tensor;
+import java.io.PrintStream;
+import java.nio.file.Files;
+import java.nio.file.Path;
+import java.util.LinkedHashMap;
+import java.util.Locale;
+import java.util.Map;
+
+/**
+ * Makes everything in {@code sample-tensors/} from seeds: simulates the {@link ConveyorScenario} data sets, trains
+ * the classifier with Rungbook's own {@link Trainer}, and writes the checkpoints and data files. Re-running it
+ * reproduces the committed files bit for bit on the same JDK.
+ */
+public final class SampleGenerator {
+    /** Seeds, fixed so that the committed files can be regenerated. */
+    static final long TRAIN_SEED = 101;
+    static final long CALIBRATION_SEED = 202;
+    static final long VALIDATION_SEED = 303;
+    static final long TEST_SEED = 404;
+    static final long INIT_SEED = 7;
+    static final long IMBALANCE_SEED = 11;
+
+    /** Widths of the conveyor classifier. */
+    static final int[] MLP_WIDTHS = {ConveyorScenario.FEATURES, 256, 128, ConveyorScenario.CLASSES.size()};
+
+    private SampleGenerator() {
+    }
+
+    /** What was made: the float accuracies on validation and test data. */
+    public record Summary(double validationAccuracy, double testAccuracy, Path folder) {
+    }
+
+    /**
+     * Generates the sample files into {@code folder} (created if needed), reporting training progress to
+     * {@code progress} and a short log to {@code log}.
+     */
+    public static Summary generate(Path folder, Progress progress, PrintStream log) throws java.io.IOException {
+        Files.createDirectories(folder);
+        Dataset train = ConveyorScenario.generate(TRAIN_SEED, 8000);
+        Dataset calibration = ConveyorScenario.generate(CALIBRATION_SEED, 512);
+        Dataset validation = ConveyorScenario.generate(VALIDATION_SEED, 2000);
+        Dataset test = ConveyorScenario.generate(TEST_SEED, 2000);
+        log.println("training the conveyor idler classifier " + java.util.Arrays.toString(MLP_WIDTHS) + " on "
+                + train.size() + " simulated samples");
+        Network net = Trainer.adam(1e-3).epochs(40).batchSize(64).seed(INIT_SEED).progress(progress)
+                .train(Trainer.initialMlp(INIT_SEED, MLP_WIDTHS), train);
+        net = imbalanceChannels(net, IMBALANCE_SEED);
+        double va = net.accuracy(validation);
+        double ta = net.accuracy(test);
+        log.printf(Locale.ROOT, "float accuracy: validation %.4f, test %.4f%n", va, ta);
+
+        Map<String, String> meta = new LinkedHashMap<>();
+        meta.put("scenario", "conveyor idler condition monitoring (Rungbook sample, simulated)");
+        meta.put("architecture", "fc1 -> relu -> fc2 -> relu -> fc3; widths " + java.util.Arrays.toString(MLP_WIDTHS));
+        meta.put("inputs", ConveyorScenario.BINS + " log10 spectrum bins (0-2 kHz) then "
+                + String.join(", ", ConveyorScenario.READINGS));
+        meta.put("classes", String.join(", ", ConveyorScenario.CLASSES));
+        meta.put("validation_accuracy", String.format(Locale.ROOT, "%.4f", va));
+        meta.put("test_accuracy", String.format(Locale.ROOT, "%.4f", ta));
+        meta.put("generator", "rungbook samples (dev.rungbook.samples.SampleGenerator)");
+
+        Map<String, Tensor> params = net.parameters();
+        Checkpoint.write(folder.resolve("conveyor-mlp.f32.safetensors"), params, meta);
+        Map<String, Tensor> bf16 = new LinkedHashMap<>();
+        params.forEach((k, v) -> bf16.put(k, v.withDType(DType.BF16)));
+        Checkpoint.write(folder.resolve("conveyor-mlp.bf16.safetensors"), bf16, meta);
+        writeDataset(folder.resolve("conveyor-calibration.npz"), calibration);
+        writeDataset(folder.resolve("conveyor-validation.npz"), validation);
+        writeDataset(folder.resolve("conveyor-test.npz"), test);
+        return new Summary(va, ta, folder);
+    }
+
+    /**
+     * Scales each output channel i of fc1 (weight row and bias) by a seeded log-normal factor s_i = exp(1.2 z) and
+     * input column i of fc2 by 1/s_i. Because ReLU is positively homogeneous, the network computes the same function
+     * (up to float rounding); but fc1's per-channel ranges now differ by about two orders of magnitude, as they do in
+     * real networks after BatchNorm folding, which is what per-tensor quantization and equalization are about.
+     */
+    static Network imbalanceChannels(Network net, long seed) {
+        java.util.List<dev.rungbook.nn.Linear> lin = net.linearLayers();
+        dev.rungbook.nn.Linear fc1 = lin.get(0);
+        dev.rungbook.nn.Linear fc2 = lin.get(1);
+        int channels = fc1.outFeatures();
+        java.util.Random r = new java.util.Random(seed);
+        float[] w1 = fc1.weight().toFloatArray();
+        float[] b1 = fc1.bias().toFloatArray();
+        float[] w2 = fc2.weight().toFloatArray();
+        int in1 = fc1.inFeatures();
+        for (int i = 0; i < channels; i++) {
+            float scale = (float) Math.exp(1.2 * r.nextGaussian());
+            for (int j = 0; j < in1; j++) {
+                w1[i * in1 + j] *= scale;
+            }
+            b1[i] *= scale;
+            for (int o = 0; o < fc2.outFeatures(); o++) {
+                w2[o * channels + i] /= scale;
+            }
+        }
+        Tensor nw1 = Tensor.of(w1, fc1.weight().shape());
+        Tensor nb1 = Tensor.of(b1, fc1.bias().shape());
+        Tensor nw2 = Tensor.of(w2, fc2.weight().shape());
+        return net.mapLinear(l -> l == fc1 ? l.withWeight(nw1).withBias(nb1) : l == fc2 ? l.withWeight(nw2) : l);
+    }
+
+    private static void writeDataset(Path file, Dataset d) {
+        int[] labels = d.labels();
+        float[] y = new float[labels.length];
+        for (int i = 0; i < y.length; i++) {
+            y[i] = labels[i];
+        }
+        Map<String, Tensor> m = new LinkedHashMap<>();
+        m.put("inputs", d.inputs().withName("inputs"));
+        m.put("labels", Tensor.of(y, y.length).withDType(DType.I32).withName("labels"));
+        Checkpoint.write(file, m, Map.of());
+    }
+}
