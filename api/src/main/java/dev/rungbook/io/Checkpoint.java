@@ -110,8 +110,10 @@ public final class Checkpoint implements AutoCloseable {
     public static Checkpoint open(Path file) {
         Objects.requireNonNull(file, "file");
         try {
-            if (Files.isDirectory(file)) {
-                throw new UncheckedIOException(new IOException(file + ": is a directory, not a checkpoint file"));
+            if (Files.exists(file) && !Files.isRegularFile(file)) {
+                // directories, pipes and devices: never block on reading one
+                throw new UncheckedIOException(file + ": not a regular file",
+                        new IOException(file + ": not a regular file"));
             }
             Formats.Format f = Formats.choose(file);
             Contents c = f.reader.read(file);
