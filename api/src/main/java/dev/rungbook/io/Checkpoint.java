@@ -184,6 +184,20 @@ public final class Checkpoint implements AutoCloseable {
         return Tensor.lazy(name, e.dtype, shape, () -> load(e, shape));
     }
 
+    /**
+     * Every tensor, lazy, in file order (an unmodifiable map from name to {@link #tensor}); handy for converting a
+     * whole checkpoint: {@code Checkpoint.write(out, in.tensors())}.
+     *
+     * @throws CheckpointFormatException if a tensor is too large to load (see {@link #tensor})
+     */
+    public Map<String, Tensor> tensors() {
+        Map<String, Tensor> m = new LinkedHashMap<>();
+        for (String n : entries.keySet()) {
+            m.put(n, tensor(n));
+        }
+        return Collections.unmodifiableMap(m);
+    }
+
     private float[] load(Entry e, int[] shape) {
         if (state.closed) {
             throw new IllegalStateException(e.file + ": tensor '" + e.name + "': the checkpoint was closed before"
