@@ -152,8 +152,14 @@ final class Decode {
      */
     static void fromChannel(FileChannel channel, long position, DType type, ByteOrder order, float[] dst)
             throws IOException {
+        fromChannel(channel, position, type, order, dst, MAP_CHUNK);
+    }
+
+    /** As above with mappings of at most {@code chunkBytes} (a multiple of 8); tests use small pieces. */
+    static void fromChannel(FileChannel channel, long position, DType type, ByteOrder order, float[] dst,
+            long chunkBytes) throws IOException {
         int size = type.byteSize();
-        long perChunk = MAP_CHUNK / size;
+        long perChunk = chunkBytes / size;
         int done = 0;
         while (done < dst.length) {
             int k = (int) Math.min(perChunk, dst.length - done);

@@ -106,12 +106,12 @@ final class Encode {
 
     private static int narrow(Path file, String name, Tensor t, FloatFormat f, float[] v, int i) {
         float x = v[i];
+        if (Float.isInfinite(x) && !f.hasInfinity()) {
+            throw refusal(file, name, t, i, x, "cannot be written as " + t.dtype() + ", which has no infinity");
+        }
         float r = f.round(x);
         if (!Float.isNaN(x) && (Float.isNaN(r) || Float.isInfinite(r) && !Float.isInfinite(x))) {
             throw refusal(file, name, t, i, x, "overflows " + t.dtype() + " (largest finite value " + f.max() + ")");
-        }
-        if (Float.isInfinite(x) && !f.hasInfinity()) {
-            throw refusal(file, name, t, i, x, "cannot be written as " + t.dtype() + ", which has no infinity");
         }
         return f.encode(x);
     }

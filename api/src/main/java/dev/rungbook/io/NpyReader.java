@@ -26,7 +26,7 @@ final class NpyReader {
         try {
             String name = stem(file);
             long size = ch.size();
-            NpyHeader h = NpyHeader.read(file, null, (off, len) -> {
+            NpyHeader h = NpyHeader.read(file, name, (off, len) -> {
                 long n = Math.max(0, Math.min(len, size - off));
                 ByteBuffer b = ByteBuffer.allocate((int) n);
                 SafetensorsReader.readFully(ch, b, off);
