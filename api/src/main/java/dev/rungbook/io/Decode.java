@@ -51,6 +51,29 @@ final class Decode {
      * the first element) into {@code dst[off..off+n)}, advancing {@code src}.
      */
     static void decode(ByteBuffer src, DType type, float[] dst, int off, int n) {
+        int parts = Math.min(Runtime.getRuntime().availableProcessors(), n / PARALLEL_MIN_ELEMENTS);
+        if (parts < 2) {
+            decodeSerial(src, type, dst, off, n);
+            return;
+        }
+        // Large tensors convert in parallel slices; each slice reads its own view of the buffer.
+        int start = src.position();
+        int size = type.byteSize();
+        ByteOrder order = src.order();
+        java.util.stream.IntStream.range(0, parts).parallel().forEach(part -> {
+            int from = (int) ((long) n * part / parts);
+            int to = (int) ((long) n * (part + 1) / parts);
+            ByteBuffer slice = src.duplicate().order(order);
+            slice.position(start + from * size);
+            decodeSerial(slice, type, dst, off + from, to - from);
+        });
+        src.position(start + n * size);
+    }
+
+    /** Slices below this many elements are not worth a second thread. */
+    static final int PARALLEL_MIN_ELEMENTS = 1 << 22;
+
+    private static void decodeSerial(ByteBuffer src, DType type, float[] dst, int off, int n) {
         switch (type) {
             case F32:
                 src.asFloatBuffer().get(dst, off, n);
