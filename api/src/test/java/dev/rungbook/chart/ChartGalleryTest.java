@@ -1,9 +1,11 @@
 package dev.rungbook.chart;
 
+import static org.junit.jupiter.api.Assertions.assertEquals;
 import static org.junit.jupiter.api.Assertions.assertTrue;
 
 import dev.rungbook.tensor.Tensor;
 import dev.rungbook.testing.Fixtures;
+import java.awt.image.BufferedImage;
 import java.nio.file.Files;
 import java.nio.file.Path;
 import java.util.LinkedHashMap;
@@ -11,11 +13,15 @@ import java.util.List;
 import java.util.Map;
 import org.junit.jupiter.api.Test;
 import org.knowm.xchart.internal.chartpart.IChart;
+import org.w3c.dom.Document;
 import tech.tablesaw.api.DoubleColumn;
 import tech.tablesaw.api.StringColumn;
 import tech.tablesaw.api.Table;
 
-/** Draws one of every chart into target/chart-gallery, for a person to look at; checks each file was written. */
+/**
+ * Draws one of every chart into target/chart-gallery (PNG at scale 2 and SVG), for a person to look at, and checks
+ * that each PNG decodes to twice the chart size with a drawing on it and each SVG parses with an svg root element.
+ */
 class ChartGalleryTest {
     static Tensor weights() {
         float[] v = Fixtures.gaussian(42, 64 * 128);
@@ -84,9 +90,16 @@ class ChartGalleryTest {
                 new double[] {400, 110}, new double[] {91.5, 82}, List.of("float32", "int4 per-tensor")));
         for (Map.Entry<String, IChart> e : charts.entrySet()) {
             Path png = dir.resolve(e.getKey() + ".png");
+            Path svg = dir.resolve(e.getKey() + ".svg");
             Charts.savePng(e.getValue(), png, 2);
-            Charts.saveSvg(e.getValue(), dir.resolve(e.getKey() + ".svg"));
-            assertTrue(Files.size(png) > 1000, png.toString());
+            Charts.saveSvg(e.getValue(), svg);
+            BufferedImage img = ChartsTest.decodePng(Files.readAllBytes(png));
+            assertEquals(2 * Charts.WIDTH, img.getWidth(), png.toString());
+            assertEquals(2 * Charts.HEIGHT, img.getHeight(), png.toString());
+            ChartsTest.assertNotBlank(img);
+            Document doc = ChartsTest.parseXml(Files.readString(svg));
+            assertEquals("svg", doc.getDocumentElement().getLocalName(), svg.toString());
+            assertTrue(doc.getElementsByTagNameNS("*", "path").getLength() > 10, "shapes drawn in " + svg);
         }
     }
 }
