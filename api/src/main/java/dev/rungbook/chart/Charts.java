@@ -62,12 +62,16 @@ public final class Charts {
      * of short ticks along the bottom, which stays readable for int8 grids (256 levels).
      */
     public static final int MAX_LINE_LEVELS = 64;
+    /** The bottom of a logarithmic count axis; empty bins are drawn there (real counts are at least 1). */
+    public static final double LOG_FLOOR = 0.5;
     /** The largest PNG scale factor accepted. */
     public static final int MAX_SCALE = 8;
     /** Series with at most this many points get markers; longer ones are drawn as plain lines. */
     static final int MAX_MARKED_POINTS = 64;
 
     private static final String GRID_LEVELS = "grid levels";
+    /** The name of an invisible one-point series that fixes XChart's tick placement on histograms. */
+    static final String SPACER = "(tick spacer)";
 
     static {
         if (System.getProperty("java.awt.headless") == null) {
@@ -85,7 +89,7 @@ public final class Charts {
         return histogram(t, TensorStats.DEFAULT_BINS, false);
     }
 
-    /** As {@link #histogram(Tensor)} with a logarithmic count axis (empty bins are left blank). */
+    /** As {@link #histogram(Tensor)} with a logarithmic count axis (empty bins drop to the axis floor). */
     public static XYChart histogramLog(Tensor t) {
         return histogram(t, TensorStats.DEFAULT_BINS, true);
     }
@@ -93,8 +97,9 @@ public final class Charts {
     /**
      * The histogram of a tensor's finite values in {@code bins} equal bins over [min, max], drawn as a filled step
      * outline. The series' y values are the bin counts (bin i is drawn from edge i to edge i + 1; the series repeats
-     * the last count at the last edge). With {@code logY} the count axis is logarithmic and empty bins are NaN
-     * (blank) in the series.
+     * the last count at the last edge). With {@code logY} the count axis is logarithmic, starting at
+     * {@value #LOG_FLOOR}, and empty bins are drawn at that floor: the series holds {@value #LOG_FLOOR} for them,
+     * below every real count (the smallest is 1).
      *
      * @throws IllegalArgumentException if {@code bins} is not in [1, {@link Histogram#MAX_BINS}]
      */
@@ -106,8 +111,8 @@ public final class Charts {
     /** A chart of an existing histogram (see {@link #histogram(Tensor, int, boolean)} for how it is drawn). */
     public static XYChart histogram(Histogram h, String title, boolean logY) {
         XYChart c = xy(title, "value", logY ? "count (log scale)" : "count");
-        addHistogram(c, "values (n=" + h.total() + ")", h, logY, true, ChartStyle.BLUE);
-        finishHistogram(c, logY, h.maxCount());
+        addHistogram(c, "values (n=" + h.total() + ")", h, logY, !logY, ChartStyle.BLUE);
+        finishHistogram(c, logY, h.maxCount(), h);
         return c;
     }
 
@@ -128,7 +133,7 @@ public final class Charts {
         return histogram(before, after, gridLevels, TensorStats.DEFAULT_BINS, false);
     }
 
-    /** As {@link #histogram(Tensor, Tensor, float[])} with a logarithmic count axis (empty bins left blank). */
+    /** As {@link #histogram(Tensor, Tensor, float[])} with a logarithmic count axis (empty bins at the floor). */
     public static XYChart histogramLog(Tensor before, Tensor after, float[] gridLevels) {
         return histogram(before, after, gridLevels, TensorStats.DEFAULT_BINS, true);
     }
@@ -164,12 +169,12 @@ public final class Charts {
         boolean sameName = before.name() != null && before.name().equals(after.name());
         String title = sameName ? "Values of " + before.name() + ", before and after" : "Values before and after";
         XYChart c = xy(title, "value", logY ? "count (log scale)" : "count");
-        addHistogram(c, sameName ? "before" : "before: " + display(before), hb, logY, true, ChartStyle.BLUE);
+        addHistogram(c, sameName ? "before" : "before: " + display(before), hb, logY, !logY, ChartStyle.BLUE);
         addHistogram(c, sameName ? "after" : "after: " + display(after), ha, logY, false, ChartStyle.VERMILLION);
         long top = Math.max(hb.maxCount(), ha.maxCount());
-        finishHistogram(c, logY, top);
+        finishHistogram(c, logY, top, hb);
         if (levels.length > 0) {
-            markLevels(c, levels, logY ? 0.5 : 0, Math.max(1, top), logY);
+            markLevels(c, levels, logY ? LOG_FLOOR : 0, Math.max(1, top), logY);
         }
         return c;
     }
@@ -198,6 +203,10 @@ public final class Charts {
         return set.stream().mapToDouble(Double::doubleValue).toArray();
     }
 
+    /**
+     * Adds a histogram as a step outline, filled when {@code filled}. Log charts are never filled: XChart closes
+     * areas at 1 on a log axis, which would cut the floor-level empty bins out of the fill.
+     */
     private static void addHistogram(XYChart c, String name, Histogram h, boolean logY, boolean filled,
             Color color) {
         int bins = h.bins();
@@ -205,7 +214,7 @@ public final class Charts {
         double[] y = new double[bins + 1];
         for (int i = 0; i < bins; i++) {
             long n = h.count(i);
-            y[i] = logY && n == 0 ? Double.NaN : n;
+            y[i] = logY && n == 0 ? LOG_FLOOR : n;
         }
         y[bins] = y[bins - 1];
         XYSeries s = c.addSeries(name, x, y);
@@ -218,11 +227,18 @@ public final class Charts {
         }
     }
 
-    private static void finishHistogram(XYChart c, boolean logY, long top) {
+    private static void finishHistogram(XYChart c, boolean logY, long top, Histogram h) {
+        // XChart puts one tick on every x value when all x values are evenly spaced (as bin edges are), which gives
+        // crowded, odd labels. One invisible point off the even spacing restores its usual round-number ticks.
+        XYSeries spacer = c.addSeries(SPACER, new double[] {h.lo() + (h.hi() - h.lo()) / Math.PI},
+                new double[] {logY ? 1 : 0});
+        spacer.setXYSeriesRenderStyle(XYSeriesRenderStyle.Scatter);
+        spacer.setMarker(SeriesMarkers.NONE);
+        spacer.setShowInLegend(false);
         if (logY) {
             c.getStyler().setYAxisLogarithmic(true);
             c.getStyler().setYAxisLogarithmicDecadeOnly(true);
-            c.getStyler().setYAxisMin(0.5);
+            c.getStyler().setYAxisMin(LOG_FLOOR);
             c.getStyler().setYAxisMax(Math.max(2.0, top * 1.5));
         } else {
             c.getStyler().setYAxisMin(0.0);

@@ -64,9 +64,9 @@ class ChartsTest {
         double[] y = s.getYData();
         long[] c = new long[y.length - 1];
         for (int i = 0; i < c.length; i++) {
-            // A NaN (blank on a log axis) stands for an empty bin; anything else must be a whole count.
-            c[i] = Double.isNaN(y[i]) ? 0 : (long) y[i];
-            if (!Double.isNaN(y[i])) {
+            // The log-axis floor stands for an empty bin; anything else must be a whole count.
+            c[i] = y[i] == Charts.LOG_FLOOR ? 0 : (long) y[i];
+            if (y[i] != Charts.LOG_FLOOR) {
                 assertEquals(c[i], y[i], 0);
             }
         }
@@ -186,9 +186,10 @@ class ChartsTest {
         assertEquals(256, strip.getXData().length);
         assertEquals(XYSeriesRenderStyle.Scatter, strip.getXYSeriesRenderStyle().orElseThrow());
         assertTrue(c.getStyler().isYAxisLogarithmic());
-        // Empty bins are blank (NaN) on a log axis, never a made-up count, and the chart still draws.
+        // Empty bins sit at the log axis floor, below any real count, and the chart still draws.
         XYSeries after = onlySeriesStartingWith(c, "after");
-        assertTrue(Arrays.stream(after.getYData()).anyMatch(Double::isNaN));
+        assertTrue(Arrays.stream(after.getYData()).anyMatch(y -> y == Charts.LOG_FLOOR));
+        assertTrue(Arrays.stream(after.getYData()).noneMatch(y -> y < Charts.LOG_FLOOR || Double.isNaN(y)));
         assertArrayEquals(directCount(ChartGalleryTest.roundToGrid(w, levels), after.getXData()),
                 seriesCounts(after));
         assertNotBlank(decodePng(Charts.toPngBytes(c, 1)));
