@@ -222,6 +222,27 @@ class ChartsTest {
     }
 
     @Test
+    void degenerateTensorsStillDraw() throws Exception {
+        float[] v = new float[4 * 8];
+        Arrays.fill(v, 0.25f);
+        for (int j = 0; j < 8; j++) {
+            v[2 * 8 + j] = Float.NaN; // channel 2 has no finite value: a gap in the range chart
+        }
+        Tensor t = Tensor.of(v, 4, 8).withName("odd");
+        XYChart ranges = Charts.channelRanges(t, 0, true);
+        assertTrue(Double.isNaN(ranges.getSeries("max").getYData()[3]), "the empty channel ranks last");
+        assertNotBlank(decodePng(Charts.toPngBytes(ranges, 1)));
+        Tensor allNan = Tensor.of(new float[] {Float.NaN, Float.NaN}, 2);
+        for (XYChart c : List.of(Charts.histogram(t), Charts.histogramLog(t), Charts.histogram(allNan),
+                Charts.histogram(allNan, t, new float[] {0.25f}))) {
+            assertNotBlank(decodePng(Charts.toPngBytes(c, 1)));
+        }
+        // A constant tensor gets a small range around its value, holding every finite value.
+        XYSeries s = onlySeriesStartingWith(Charts.histogram(t), "values");
+        assertEquals(24, Arrays.stream(seriesCounts(s)).sum());
+    }
+
+    @Test
     void errorVsBitsMakesOneSortedSeriesPerFamily() {
         Table t = Table.create("study", StringColumn.create("family", "int", "fp", "int", "int", "fp"),
                 DoubleColumn.create("bpw", 8.25, 8, 4.25, Double.NaN, 4),
