@@ -371,6 +371,51 @@ public final class TensorStats {
     }
 
     /**
+     * A bin count by the Freedman-Diaconis rule, for {@link #histogram(int)}: {@code ceil((max - min) / w)} with bin
+     * width {@code w = 2 IQR n^(-1/3)}, where IQR is the 75th minus the 25th percentile of the finite values (linear
+     * interpolation between order statistics, NumPy's default and Hyndman-Fan type 7), clamped to [1, maxBins].
+     * When IQR is 0 but the values are not all equal (for example mostly-zero weights) the rule gives no finite
+     * width and the answer is {@code maxBins}; with fewer than 2 finite values or all equal it is 1. Sorts a copy of
+     * the finite values.
+     *
+     * @throws IllegalArgumentException if {@code maxBins} is not in [1, {@link Histogram#MAX_BINS}]
+     */
+    public int freedmanDiaconisBins(int maxBins) {
+        if (maxBins < 1 || maxBins > Histogram.MAX_BINS) {
+            throw new IllegalArgumentException(label() + ": maxBins must be in [1, " + Histogram.MAX_BINS + "], got "
+                    + maxBins);
+        }
+        if (count < 2 || min == max) {
+            return 1;
+        }
+        float[] v = values();
+        float[] finite = new float[count];
+        int k = 0;
+        for (float f : v) {
+            if (Float.isFinite(f)) {
+                finite[k++] = f;
+            }
+        }
+        Arrays.sort(finite);
+        double iqr = quantile7(finite, 0.75) - quantile7(finite, 0.25);
+        if (iqr <= 0) {
+            return maxBins;
+        }
+        double width = 2 * iqr / Math.cbrt(count);
+        double bins = Math.ceil((max - min) / width);
+        return (int) Math.max(1, Math.min(maxBins, bins));
+    }
+
+    /** The p-quantile of sorted values by linear interpolation at position p (n - 1) (Hyndman-Fan type 7). */
+    static double quantile7(float[] sorted, double p) {
+        double pos = p * (sorted.length - 1);
+        int lo = (int) Math.floor(pos);
+        int hi = Math.min(lo + 1, sorted.length - 1);
+        double frac = pos - lo;
+        return sorted[lo] + frac * ((double) sorted[hi] - sorted[lo]);
+    }
+
+    /**
      * One row with the columns {@code tensor} (name, or {@code (unnamed)}), {@code dtype}, {@code shape} (as
      * {@code [256, 64]}), {@code count} (finite values), {@code min}, {@code max}, {@code mean}, {@code std} (sample),
      * {@code absmax}, {@code kurtosis} (excess), {@code beyond3sd} (share 0..1), {@code nan}, {@code inf}.

@@ -8,6 +8,7 @@ import static org.junit.jupiter.api.Assertions.assertTrue;
 import dev.rungbook.tensor.Tensor;
 import dev.rungbook.testing.Fixtures;
 import java.util.Random;
+import org.apache.commons.math3.stat.descriptive.rank.Percentile;
 import org.junit.jupiter.api.Test;
 import tech.tablesaw.api.Table;
 
@@ -102,6 +103,31 @@ class TensorStatsHistogramTest {
         // Source: by hand, mean 0 and sample variance (2 * MAX^2) / 2 = MAX^2, in double without overflow.
         assertEquals(0, s.mean(), 0);
         assertEquals((double) Float.MAX_VALUE, s.std(), Math.ulp((double) Float.MAX_VALUE) * 4);
+    }
+
+    @Test
+    void freedmanDiaconisBinCount() {
+        // Source: the Freedman-Diaconis rule (bin width 2 IQR n^(-1/3)), with the quartiles from commons-math3's
+        // Percentile using estimation type R_7 (linear interpolation, NumPy's default).
+        for (long seed : new long[] {1, 2, 3}) {
+            float[] v = Fixtures.gaussian(seed, 3001 + (int) seed * 17);
+            double[] d = new double[v.length];
+            for (int i = 0; i < v.length; i++) {
+                d[i] = v[i];
+            }
+            Percentile p = new Percentile().withEstimationType(Percentile.EstimationType.R_7);
+            double iqr = p.evaluate(d, 75) - p.evaluate(d, 25);
+            TensorStats s = TensorStats.of(Tensor.of(v, v.length));
+            int expected = (int) Math.ceil((s.max() - s.min()) / (2 * iqr / Math.cbrt(v.length)));
+            assertEquals(expected, s.freedmanDiaconisBins(10_000));
+            assertEquals(Math.min(expected, 10), s.freedmanDiaconisBins(10));
+        }
+        float[] sparse = new float[100];
+        sparse[7] = 1f;
+        assertEquals(256, TensorStats.of(Tensor.of(sparse, 100)).freedmanDiaconisBins(256), "IQR 0: the cap");
+        assertEquals(1, TensorStats.of(Tensor.of(new float[] {3, 3, 3}, 3)).freedmanDiaconisBins(256));
+        assertThrows(IllegalArgumentException.class,
+                () -> TensorStats.of(Tensor.of(sparse, 100)).freedmanDiaconisBins(0));
     }
 
     @Test
