@@ -192,13 +192,14 @@ final class Engine {
         int qmax = q.qmax();
         if (q.symmetric) {
             double a = q.unsigned ? Math.max(0.0, r.hi()) : r.absMax();
-            double top = q.midRise ? qmax + 0.5 : qmax;
             float z = q.midRise ? -0.5f : 0f;
             if (!(a > 0)) {
                 return new float[] {1f, z};
             }
-            double s = a / top;
-            float sf = q.pow2 ? (float) pow2Ceil(s) : fitScale(s, a, top);
+            // a mid-rise grid's cells cover [-a, a] (overload point a); otherwise the top level is a itself
+            double s = q.midRise ? a / (qmax + 1.0) : a / qmax;
+            float sf = q.pow2 ? (float) pow2Ceil(s) : q.midRise ? Math.max((float) s, Float.MIN_VALUE)
+                    : fitScale(s, a, qmax);
             return new float[] {sf, z};
         }
         double lo = Math.min(r.lo(), 0.0);

@@ -276,7 +276,9 @@ public final class Quantizer {
     /**
      * A symmetric uniform grid without a level at zero: levels {@code +-(k + 1/2) s}, {@code k = 0 .. 2^(b-1) - 1}
      * (codes {@code q} in {@code -2^(b-1) .. 2^(b-1) - 1} stand for {@code s (q + 1/2)}, zero point -1/2), the
-     * textbook mid-rise quantizer with {@code 2^b} levels. With a min-max range, {@code s = max|x| / (2^(b-1) - 1/2)}.
+     * textbook mid-rise quantizer with {@code 2^b} levels. Its {@code 2^b} cells of width {@code s} cover the clipping
+     * range {@code [-a, a]} (the overload point is {@code a}): {@code s = a / 2^(b-1)}, so the top level is
+     * {@code a - s/2}.
      */
     public Quantizer midRise() {
         require(kind == Kind.LINEAR, "mid-rise applies to linear grids");
