@@ -25,8 +25,8 @@ public final class FloatSort {
 
     /**
      * Sorts {@code a} in place, ascending, with {@code -0.0f} before {@code +0.0f}. Arrays shorter than
-     * {@link #RADIX_THRESHOLD} go to {@link Arrays#sort(float[])}; longer ones are radix-sorted with two scratch int
-     * arrays of the same length.
+     * {@link #RADIX_THRESHOLD} go to {@link Arrays#sort(float[])}; longer ones are radix-sorted with up to two scratch
+     * int arrays of the same length.
      *
      * @param a the values (modified)
      */
@@ -36,25 +36,18 @@ public final class FloatSort {
             Arrays.sort(a);
             return;
         }
-        int[] keys = new int[n];
-        int[] tmp = new int[n];
         int[] c0 = new int[BUCKETS];
         int[] c1 = new int[BUCKETS];
         int[] c2 = new int[BUCKETS];
-        for (int i = 0; i < n; i++) {
-            int k = key(Float.floatToRawIntBits(a[i]));
-            keys[i] = k;
-            c0[k & MASK]++;
-            c1[(k >>> DIGIT_BITS) & MASK]++;
-            c2[k >>> (2 * DIGIT_BITS)]++;
-        }
-        int[] src = keys;
-        int[] dst = tmp;
+        histogram(a, c0, c1, c2);
+        int firstKey = key(Float.floatToRawIntBits(a[0]));
         int[][] counts = {c0, c1, c2};
+        int[] shifts = new int[3];
+        int passes = 0;
         for (int pass = 0; pass < 3; pass++) {
-            int[] c = counts[pass];
             int shift = pass * DIGIT_BITS;
-            if (c[(src[0] >>> shift) & MASK] == n) {
+            int[] c = counts[pass];
+            if (c[(firstKey >>> shift) & MASK] == n) {
                 continue; // every key has the same digit here
             }
             int sum = 0;
@@ -63,16 +56,66 @@ public final class FloatSort {
                 c[b] = sum;
                 sum += t;
             }
-            for (int i = 0; i < n; i++) {
-                int k = src[i];
-                dst[c[(k >>> shift) & MASK]++] = k;
-            }
+            counts[passes] = c;
+            shifts[passes++] = shift;
+        }
+        if (passes == 0) {
+            return; // all bit patterns are equal
+        }
+        // First pass reads the floats, middle passes go between two key buffers, the last writes floats back.
+        int[] src = new int[n];
+        int[] c = counts[0];
+        int shift = shifts[0];
+        scatterFromFloats(a, src, c, shift);
+        int[] dst = passes > 2 ? new int[n] : null;
+        for (int pass = 1; pass < passes - 1; pass++) {
+            c = counts[pass];
+            shift = shifts[pass];
+            scatter(src, dst, c, shift);
             int[] s = src;
             src = dst;
             dst = s;
         }
-        for (int i = 0; i < n; i++) {
-            a[i] = Float.intBitsToFloat(unkey(src[i]));
+        if (passes == 1) {
+            for (int i = 0; i < n; i++) {
+                a[i] = Float.intBitsToFloat(unkey(src[i]));
+            }
+            return;
+        }
+        c = counts[passes - 1];
+        shift = shifts[passes - 1];
+        scatterToFloats(src, a, c, shift);
+    }
+
+    // Each pass is its own small method so that the JIT compiles it as a whole method rather than on-stack.
+
+    private static void histogram(float[] a, int[] c0, int[] c1, int[] c2) {
+        for (int i = 0; i < a.length; i++) {
+            int k = key(Float.floatToRawIntBits(a[i]));
+            c0[k & MASK]++;
+            c1[(k >>> DIGIT_BITS) & MASK]++;
+            c2[k >>> (2 * DIGIT_BITS)]++;
+        }
+    }
+
+    private static void scatterFromFloats(float[] a, int[] dst, int[] c, int shift) {
+        for (int i = 0; i < a.length; i++) {
+            int k = key(Float.floatToRawIntBits(a[i]));
+            dst[c[(k >>> shift) & MASK]++] = k;
+        }
+    }
+
+    private static void scatter(int[] src, int[] dst, int[] c, int shift) {
+        for (int i = 0; i < src.length; i++) {
+            int k = src[i];
+            dst[c[(k >>> shift) & MASK]++] = k;
+        }
+    }
+
+    private static void scatterToFloats(int[] src, float[] a, int[] c, int shift) {
+        for (int i = 0; i < src.length; i++) {
+            int k = src[i];
+            a[c[(k >>> shift) & MASK]++] = Float.intBitsToFloat(unkey(k));
         }
     }
 
