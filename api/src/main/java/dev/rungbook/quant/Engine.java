@@ -1,5 +1,8 @@
 package dev.rungbook.quant;
 
+import dev.rungbook.internal.Codebook1D;
+import dev.rungbook.internal.MxScale;
+import dev.rungbook.internal.Nf4;
 import dev.rungbook.internal.TensorAccess;
 import dev.rungbook.progress.Progress;
 import dev.rungbook.range.Range;
@@ -99,11 +102,14 @@ final class Engine {
                 return floatFormat();
             case LOG:
                 return levelsGrid(logLevels(q.bits));
-            case BINARY:
-            case TERNARY:
-                return signGrid();
+            case NF4:
+                return levelsGrid(Nf4.levels());
+            case MX:
+                return mx();
+            case CODEBOOK:
+                return codebook();
             default:
-                throw new UnsupportedOperationException(q.label() + ": this grid is not available yet");
+                return signGrid();
         }
     }
 
@@ -471,6 +477,100 @@ final class Engine {
         progress.finish(task);
         float[][] lv = new float[][] {levels.clone()};
         return finish(deq, codes, scales, null, lv, (long) (q.pow2 ? 8 : 32) * seg.count);
+    }
+
+    // ------------------------------------------------------------------ MX block formats
+
+    private Quantized mx() {
+        FloatFormat f = q.format;
+        int emax = f == null ? 0 : f.maxExponent();
+        int m = seg.size;
+        float[] buf = new float[m];
+        float[] out = new float[m];
+        int[] cbuf = new int[m];
+        float[] deq = new float[n];
+        float[] scales = new float[seg.count];
+        Codes codes = Codes.allocate(n, q.bits, f == null);
+        for (int s = 0; s < seg.count; s++) {
+            step(s);
+            seg.gather(data, s, buf);
+            float amax = 0f;
+            for (int i = 0; i < m; i++) {
+                amax = Math.max(amax, Math.abs(buf[i]));
+            }
+            double sc = Math.scalb(1.0, MxScale.sharedExponent(amax, emax));
+            scales[s] = (float) sc;
+            if (f == null) {
+                for (int i = 0; i < m; i++) {
+                    double c = Math.rint(buf[i] / sc * 64.0);
+                    c = c < -128 ? -128 : (c > 127 ? 127 : c);
+                    cbuf[i] = (int) c;
+                    out[i] = (float) (sc * c / 64.0);
+                }
+            } else {
+                for (int i = 0; i < m; i++) {
+                    float y = f.roundSaturating((float) (buf[i] / sc));
+                    cbuf[i] = f.encode(y);
+                    out[i] = (float) (sc * y);
+                }
+            }
+            seg.scatter(out, s, deq);
+            seg.scatterCodes(cbuf, s, codes);
+        }
+        progress.finish(task);
+        return finish(deq, codes, scales, null, null, 8L * seg.count);
+    }
+
+    // ------------------------------------------------------------------ fitted codebooks
+
+    private Quantized codebook() {
+        int k = q.bits;
+        int m = seg.size;
+        float[] buf = new float[m];
+        float[] out = new float[m];
+        int[] cbuf = new int[m];
+        float[] deq = new float[n];
+        float[] scales = new float[seg.count];
+        Arrays.fill(scales, 1f);
+        float[][] levels = new float[seg.count][];
+        Codes codes = Codes.allocate(n, q.codeBits(), false);
+        for (int s = 0; s < seg.count; s++) {
+            step(s);
+            seg.gather(data, s, buf);
+            String fitTask = t.label() + (seg.axis < 0 ? "" : " " + segmentName(s)) + " (spec " + q.label() + ")";
+            Codebook1D.Result r = Codebook1D.fit(buf, k, seg.count == 1 ? progress : null, fitTask);
+            double[] lv = r.levels();
+            double[] th = r.thresholds();
+            float[] lf = new float[k];
+            for (int j = 0; j < k; j++) {
+                lf[j] = (float) lv[j];
+            }
+            levels[s] = lf;
+            for (int i = 0; i < m; i++) {
+                int c = countBelow(th, buf[i]);
+                cbuf[i] = c;
+                out[i] = lf[c];
+            }
+            seg.scatter(out, s, deq);
+            seg.scatterCodes(cbuf, s, codes);
+        }
+        progress.finish(task);
+        return finish(deq, codes, scales, null, levels, 32L * k * seg.count);
+    }
+
+    /** The number of thresholds strictly below {@code x} (ascending thresholds): the level index of {@code x}. */
+    private static int countBelow(double[] th, double x) {
+        int lo = 0;
+        int hi = th.length;
+        while (lo < hi) {
+            int mid = (lo + hi) >>> 1;
+            if (th[mid] < x) {
+                lo = mid + 1;
+            } else {
+                hi = mid;
+            }
+        }
+        return lo;
     }
 
     // ------------------------------------------------------------------ binary and ternary
