@@ -94,4 +94,16 @@ public interface RangeRule {
     static RangeRule gaussian() {
         return AnalyticRule.GAUSSIAN;
     }
+
+    /**
+     * Entropy (KL) calibration, the published 8-bit procedure: a 2048-bin histogram of {@code |x|} over
+     * {@code [0, max|x|]}; for each candidate cut {@code i} the clipped distribution P (outliers added to the last kept
+     * bin) is compared with its merge into the grid's positive levels ({@code 2^(bits-1)}, 128 for int8, at most 1024)
+     * expanded back over P's non-empty bins; the cut with the smallest {@code KL(P || Q)} gives the threshold
+     * {@code t = (i + 0.5) * binWidth} and the range {@code [-t, t]} (intersected with [min, max] for asymmetric
+     * grids). Costs about {@code 2048^2} operations per segment, so it suits per-tensor activation ranges best.
+     */
+    static RangeRule entropy() {
+        return EntropyRule.INSTANCE;
+    }
 }
