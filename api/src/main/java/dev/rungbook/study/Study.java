@@ -1,5 +1,6 @@
 package dev.rungbook.study;
 
+import dev.rungbook.io.Checkpoint;
 import dev.rungbook.metrics.ErrorReport;
 import dev.rungbook.progress.Progress;
 import dev.rungbook.quant.Quantized;
@@ -10,6 +11,8 @@ import java.util.LinkedHashMap;
 import java.util.List;
 import java.util.Map;
 import java.util.Objects;
+import java.util.function.Predicate;
+import java.util.function.Supplier;
 
 /**
  * Runs quantizer specs over tensors and tabulates the result:
@@ -24,10 +27,10 @@ import java.util.Objects;
  * a tensor stops the study with the quantizer's error, which names both.
  */
 public final class Study {
-    private final Map<String, Tensor> tensors;
+    private final Map<String, Supplier<Tensor>> tensors;
     private final Progress progress;
 
-    private Study(Map<String, Tensor> tensors, Progress progress) {
+    private Study(Map<String, Supplier<Tensor>> tensors, Progress progress) {
         this.tensors = tensors;
         this.progress = progress;
     }
@@ -59,10 +62,50 @@ public final class Study {
         if (tensors.isEmpty()) {
             throw new IllegalArgumentException("a study needs at least one tensor");
         }
-        Map<String, Tensor> m = new LinkedHashMap<>();
-        tensors.forEach((k, v) -> m.put(Objects.requireNonNull(k, "tensor name"),
-                Objects.requireNonNull(v, "tensor '" + k + "'")));
+        Map<String, Supplier<Tensor>> m = new LinkedHashMap<>();
+        tensors.forEach((k, v) -> {
+            Tensor t = Objects.requireNonNull(v, "tensor '" + k + "'");
+            m.put(Objects.requireNonNull(k, "tensor name"), () -> t);
+        });
         return new Study(m, Progress.silent());
+    }
+
+    /**
+     * A study of every tensor of a checkpoint, in file order, labelled by their names. Tensors are fetched one at a
+     * time during {@link #compare} (and can be freed after their rows are done), so the checkpoint must stay open
+     * until then. Narrow the set with {@link #filter}, e.g. {@code Study.of(ckpt).filter(n -> n.endsWith(".weight"))}.
+     *
+     * @throws IllegalArgumentException if the checkpoint holds no tensor
+     */
+    public static Study of(Checkpoint checkpoint) {
+        Objects.requireNonNull(checkpoint, "checkpoint");
+        Map<String, Supplier<Tensor>> m = new LinkedHashMap<>();
+        for (String name : checkpoint.names()) {
+            m.put(name, () -> checkpoint.tensor(name));
+        }
+        if (m.isEmpty()) {
+            throw new IllegalArgumentException(checkpoint.path() + ": a study needs at least one tensor, the "
+                    + "checkpoint holds none");
+        }
+        return new Study(m, Progress.silent());
+    }
+
+    /**
+     * The same study restricted to the tensors whose names pass {@code keep}.
+     *
+     * @throws IllegalArgumentException if no tensor passes
+     */
+    public Study filter(Predicate<String> keep) {
+        Map<String, Supplier<Tensor>> m = new LinkedHashMap<>();
+        tensors.forEach((k, v) -> {
+            if (keep.test(k)) {
+                m.put(k, v);
+            }
+        });
+        if (m.isEmpty()) {
+            throw new IllegalArgumentException("no tensor of the study passes the filter; names: " + tensors.keySet());
+        }
+        return new Study(m, progress);
     }
 
     /** The same study reporting to {@code listener}. */
@@ -87,13 +130,14 @@ public final class Study {
         List<StudyResult.Row> rows = new ArrayList<>();
         long total = (long) tensors.size() * specs.length;
         long done = 0;
-        for (Map.Entry<String, Tensor> e : tensors.entrySet()) {
+        for (Map.Entry<String, Supplier<Tensor>> e : tensors.entrySet()) {
+            Tensor t = e.getValue().get();
             for (Quantizer q : specs) {
                 Objects.requireNonNull(q, "quantizer");
                 Progress.checkInterrupted("study");
-                Quantized r = q.apply(e.getValue(), progress);
+                Quantized r = q.apply(t, progress);
                 ErrorReport err = r.error();
-                rows.add(new StudyResult.Row(e.getKey(), q.label(), e.getValue().size(), r.bitsPerWeight(),
+                rows.add(new StudyResult.Row(e.getKey(), q.label(), t.size(), r.bitsPerWeight(),
                         r.bytes(), err.values()));
                 done++;
                 progress.update("study", done, total, err.mse());

@@ -89,6 +89,25 @@ class StudyTest {
     }
 
     @Test
+    void studiesEveryTensorOfACheckpointInFileOrder() throws Exception {
+        java.nio.file.Path file = Fixtures.tempDir("study").resolve("model.safetensors");
+        Map<String, Tensor> m = new LinkedHashMap<>();
+        m.put("fc1.weight", w1);
+        m.put("fc1.bias", Tensor.of(Fixtures.gaussian(3, 64), 64));
+        m.put("fc2.weight", w2);
+        dev.rungbook.io.Checkpoint.write(file, m);
+        try (dev.rungbook.io.Checkpoint ckpt = dev.rungbook.io.Checkpoint.open(file)) {
+            Study all = Study.of(ckpt);
+            assertEquals(ckpt.names(), all.tensorNames());
+            Table t = all.filter(n -> n.endsWith(".weight")).compare(Quantizer.linear(8)).table();
+            assertEquals(2, t.rowCount());
+            assertEquals(Quantizer.linear(8).apply(w1).error().mse(), t.doubleColumn("mse").get(
+                    t.stringColumn("tensor").indexOf("fc1.weight")), 0.0);
+            assertThrows(IllegalArgumentException.class, () -> all.filter(n -> false));
+        }
+    }
+
+    @Test
     void specThatDoesNotFitStopsTheStudyNamingTensorAndSpec() {
         IllegalArgumentException e = assertThrows(IllegalArgumentException.class,
                 () -> Study.of(w1, w2).compare(Quantizer.linear(4).perGroup(1, 128)));
