@@ -29,8 +29,13 @@ import java.util.Arrays;
  *       fixed point of Lloyd's conditions: every level is the weighted mean of its cell and every value lies in the
  *       cell of its nearest level (a value exactly on a midpoint goes to the lower cell), and (b) never worse than the
  *       best bin-aligned partition. It is not proven globally optimal; {@link Result#provablyOptimal()} is
- *       {@code false}. If {@link #MAX_LLOYD_ITERATIONS} is reached first, (b) still holds and (a) may not.</li>
+ *       {@code false}. If {@link #MAX_LLOYD_ITERATIONS} is reached first, (b) still holds and (a) may not.
+ *       Observed, not guaranteed: against the exact program on 10^6 Gaussian and Laplacian samples (k = 4, 8, 16)
+ *       the large path's MSE was within a relative 1e-7 of the optimum (a test checks 1e-6 on 1.2 10^5 values).</li>
  * </ul>
+ *
+ * <p>Cost: sorting aside, the large path makes one pass over the data for block prefix sums (one sum per 64 values,
+ * so little extra memory), the program on bins, {@code O(k log n)} per Lloyd step and one final pass for the MSE.
  */
 public final class Codebook1D {
     /** Largest number of distinct values solved by the exact program in {@link #fit(double[], double[], int,
