@@ -66,11 +66,13 @@ public final class ErrorReport {
         }
         float[] x = TensorAccess.data(reference);
         float[] y = TensorAccess.data(approximation);
-        checkFinite(reference, x);
-        checkFinite(approximation, y);
         Sums s = new Sums();
-        s.add(x, y);
-        double kl = klDivergence(x, y, KL_BINS);
+        s.addAll(x, y);
+        if (!Double.isFinite(s.ssx) || !Double.isFinite(s.ssy)) {
+            checkFinite(reference, x);
+            checkFinite(approximation, y);
+        }
+        double kl = klDivergence(x, y, KL_BINS, s.lo, s.hi);
         return new ErrorReport(reference, approximation, reference.rank() > 0 ? 0 : -1, s, kl);
     }
 
@@ -101,25 +103,42 @@ public final class ErrorReport {
         double ssx;
         double ssy;
         double dot;
+        double lo = Double.POSITIVE_INFINITY;
+        double hi = Double.NEGATIVE_INFINITY;
 
-        void add(float[] x, float[] y) {
+        /** One tight pass over both arrays, in local variables; also the common min and max. */
+        void addAll(float[] x, float[] y) {
+            double e2 = 0;
+            double ea = 0;
+            double em = 0;
+            double xx = 0;
+            double yy = 0;
+            double xy = 0;
+            float mn = Float.POSITIVE_INFINITY;
+            float mx = Float.NEGATIVE_INFINITY;
             for (int i = 0; i < x.length; i++) {
-                add(x[i], y[i]);
+                float a = x[i];
+                float b = y[i];
+                double e = (double) b - a;
+                e2 += e * e;
+                double ae = Math.abs(e);
+                ea += ae;
+                em = ae > em ? ae : em;
+                xx += (double) a * a;
+                yy += (double) b * b;
+                xy += (double) a * b;
+                mn = Math.min(mn, Math.min(a, b));
+                mx = Math.max(mx, Math.max(a, b));
             }
-        }
-
-        void add(double a, double b) {
-            double e = b - a;
-            n++;
-            sse += e * e;
-            double ae = Math.abs(e);
-            sae += ae;
-            if (ae > maxAbs) {
-                maxAbs = ae;
-            }
-            ssx += a * a;
-            ssy += b * b;
-            dot += a * b;
+            n += x.length;
+            sse += e2;
+            sae += ea;
+            maxAbs = Math.max(maxAbs, em);
+            ssx += xx;
+            ssy += yy;
+            dot += xy;
+            lo = Math.min(lo, mn);
+            hi = Math.max(hi, mx);
         }
 
         double mse() {
@@ -163,15 +182,9 @@ public final class ErrorReport {
      * {@code KL(P || Q)} in nats between {@code bins}-bin histograms of {@code x} and {@code y} over their common
      * range, with Q mixed with {@link #KL_MIX} of the uniform distribution (see the class description).
      */
-    static double klDivergence(float[] x, float[] y, int bins) {
+    static double klDivergence(float[] x, float[] y, int bins, double lo, double hi) {
         if (x.length == 0) {
             return 0;
-        }
-        double lo = Double.POSITIVE_INFINITY;
-        double hi = Double.NEGATIVE_INFINITY;
-        for (int i = 0; i < x.length; i++) {
-            lo = Math.min(lo, Math.min(x[i], y[i]));
-            hi = Math.max(hi, Math.max(x[i], y[i]));
         }
         long[] p = histogram(x, lo, hi, bins);
         long[] q = histogram(y, lo, hi, bins);
@@ -191,13 +204,17 @@ public final class ErrorReport {
         return Math.max(0, kl);
     }
 
-    /** Counts of {@code v} in {@code bins} equal bins over [lo, hi]; bin {@code floor((v - lo) / width)}, top bin closed. */
+    /**
+     * Counts of {@code v} in {@code bins} equal bins over [lo, hi]: bin {@code floor((v - lo) * bins / (hi - lo))},
+     * the top bin closed; everything in bin 0 when {@code hi == lo}.
+     */
     static long[] histogram(float[] v, double lo, double hi, int bins) {
         long[] h = new long[bins];
-        double width = (hi - lo) / bins;
+        double norm = hi > lo ? bins / (hi - lo) : 0;
+        int top = bins - 1;
         for (float f : v) {
-            int b = width > 0 ? (int) ((f - lo) / width) : 0;
-            h[Math.max(0, Math.min(bins - 1, b))]++;
+            int b = (int) ((f - lo) * norm);
+            h[b < 0 ? 0 : (b > top ? top : b)]++;
         }
         return h;
     }
@@ -302,7 +319,7 @@ public final class ErrorReport {
             float[] xa = a.toFloatArray();
             float[] ya = b.toFloatArray();
             Sums s = new Sums();
-            s.add(xa, ya);
+            s.addAll(xa, ya);
             idx.append(c);
             cols[0].append(s.mse());
             cols[1].append(Math.sqrt(s.mse()));

@@ -29,6 +29,16 @@ public final class Codes {
         return new Codes(null, new short[n], bits, signed);
     }
 
+    /** Codes over an existing byte array (taken over, not copied). */
+    static Codes wrap(byte[] codes, int bits, boolean signed) {
+        return new Codes(codes, null, bits, signed);
+    }
+
+    /** Codes over an existing short array (taken over, not copied). */
+    static Codes wrap(short[] codes, int bits, boolean signed) {
+        return new Codes(null, codes, bits, signed);
+    }
+
     void set(int i, int code) {
         if (bytes != null) {
             bytes[i] = (byte) code;

@@ -1,6 +1,7 @@
 package dev.rungbook.quant;
 
 import dev.rungbook.internal.Codebook1D;
+import dev.rungbook.internal.Fused;
 import dev.rungbook.internal.MxScale;
 import dev.rungbook.internal.Nf4;
 import dev.rungbook.internal.TensorAccess;
@@ -97,7 +98,10 @@ final class Engine {
         seg = new Segments(shape, q.granularity, axis);
         switch (q.kind) {
             case LINEAR:
-                return q.rounding instanceof LayerRounding ? linearLayer() : linear();
+                if (q.rounding instanceof LayerRounding) {
+                    return linearLayer();
+                }
+                return fusedEligible() ? linearFused() : linear();
             case FLOAT:
                 return floatFormat();
             case LOG:
@@ -219,7 +223,7 @@ final class Engine {
         if (!q.pow2) {
             sf = hi > 0 ? fitScale(sf, hi, qmax - z) : fitScale(sf, lo, qmin - z);
         }
-        return new float[] {sf, (float) z};
+        return new float[] {sf, (float) z + 0f}; // + 0f turns -0 into 0
     }
 
     /** The element rule used for the linear grid (learned layer rules fall back to nearest inside range searches). */
@@ -296,6 +300,83 @@ final class Engine {
         }
         progress.finish(task);
         return finish(deq, codes, scales, zps, null, linearOverhead());
+    }
+
+    /**
+     * True for the common default: signed min-max grid with nearest-even rounding, one scale per row of a row-major
+     * matrix (per channel of axis 0) or for the whole tensor. Those specs run through the fused row kernel.
+     */
+    private boolean fusedEligible() {
+        boolean rows = seg.axis < 0 || (seg.axis == 0 && seg.groupSize == 0);
+        return rows && n > 0 && seg.size > 0 && !q.unsigned && !q.midRise && !q.pow2 && (q.symmetric || !q.narrow)
+                && q.range.equals(dev.rungbook.range.RangeRule.minMax()) && q.rounding == Rounding.nearest();
+    }
+
+    /**
+     * The fused path: one call of the row kernel (min/max, scale, rounding, dequantization in tight loops over the
+     * backing array, {@code x / s} in float32). Rows whose values are all equal are then redone by the general path,
+     * which reproduces such rows exactly.
+     */
+    private Quantized linearFused() {
+        int rows = seg.count;
+        int cols = seg.size;
+        float[] scales = new float[rows];
+        int[] zpi = new int[rows];
+        float[] deq = new float[n];
+        double[] sqErr = new double[rows];
+        Codes codes;
+        byte[] b = null;
+        short[] sh = null;
+        Progress.checkInterrupted(task);
+        if (q.bits <= 8) {
+            b = new byte[n];
+            Fused.quantizeRows(data, rows, cols, q.bits, q.symmetric, scales, zpi, b, deq, sqErr, null);
+            codes = Codes.wrap(b, q.bits, true);
+        } else {
+            sh = new short[n];
+            Fused.quantizeRows(data, rows, cols, q.bits, q.symmetric, scales, zpi, sh, deq, sqErr, null);
+            codes = Codes.wrap(sh, q.bits, true);
+        }
+        float[] zps = new float[rows];
+        for (int r = 0; r < rows; r++) {
+            zps[r] = zpi[r];
+        }
+        float[] buf = null;
+        float[] out = null;
+        int[] cbuf = null;
+        for (int r = 0; r < rows; r++) {
+            if (sqErr[r] == 0 || !constantRow(r * cols, cols)) {
+                continue;
+            }
+            if (buf == null) {
+                buf = new float[cols];
+                out = new float[cols];
+                cbuf = new int[cols];
+            }
+            seg.gather(data, r, buf);
+            float[] p = linearParams(dev.rungbook.range.RangeRule.minMax().range(buf, 0, cols,
+                    context(r, q.symmetric, q.bits, this::linearSse)));
+            scales[r] = p[0];
+            zps[r] = p[1];
+            linearSegment(buf, cols, p[0], p[1], r, Rounding.nearest(), cbuf, out);
+            seg.scatter(out, r, deq);
+            seg.scatterCodes(cbuf, r, codes);
+        }
+        if (rows > 1) {
+            progress.update(task, rows, rows, Double.NaN);
+        }
+        progress.finish(task);
+        return finish(deq, codes, scales, zps, null, linearOverhead());
+    }
+
+    private boolean constantRow(int off, int cols) {
+        float first = data[off];
+        for (int i = off + 1; i < off + cols; i++) {
+            if (data[i] != first) {
+                return false;
+            }
+        }
+        return true;
     }
 
     private long linearOverhead() {

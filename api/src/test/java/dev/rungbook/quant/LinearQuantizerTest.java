@@ -31,7 +31,7 @@ class LinearQuantizerTest {
     void symmetricInt8PerTensorReproducesHandComputedCodes() {
         // Source: common-practice formulas (check-values "Facts of the trade"): scale = max|x| / qmax, zero point 0,
         // q = round(x / scale) ties to even. max|x| = 2, qmax = 127: -1 -> -63.5 -> -64 (even), 0.5 -> 31.75 -> 32,
-        // 0.25 -> 15.875 -> 16, 2 -> 127.
+        // 0.25 -> 15.875 -> 16, 2 -> 127 (the float32 scale moves -63.5 by about 1e-7 at most).
         Tensor x = named("w", new float[] {-1f, 0.5f, 0.25f, 2f}, 2, 2);
         Quantized r = Quantizer.linear(8).perTensor().apply(x);
         assertArrayEquals(new int[] {-64, 32, 16, 127}, r.codes().toIntArray());
@@ -375,6 +375,31 @@ class LinearQuantizerTest {
             assertThrows(OperationInterruptedException.class, () -> Quantizer.linear(4).apply(w));
         } finally {
             Thread.interrupted();
+        }
+    }
+
+    @Test
+    void fusedDefaultPathAgreesWithTheGeneralPath() {
+        // The default spec runs through the fused row kernel (x / s in float32); a custom rule equal to rint takes
+        // the general path (x / s in double). They may differ only where x / s lies within float rounding of a tie.
+        Tensor w = Tensor.of(Fixtures.gaussian(13, 128 * 300), 128, 300);
+        for (Quantizer q : new Quantizer[] {Quantizer.linear(8), Quantizer.linear(4).asymmetric(),
+            Quantizer.linear(12).perTensor()}) {
+            Quantized fused = q.apply(w);
+            Quantized general = q.rounding(Rounding.custom("rint", (x, i) -> Math.rint(x))).apply(w);
+            int differ = 0;
+            for (int i = 0; i < w.size(); i++) {
+                int d = Math.abs(fused.codes().get(i) - general.codes().get(i));
+                assertTrue(d <= 1, q + " index " + i);
+                differ += d;
+            }
+            assertTrue(differ <= w.size() / 10_000, q + ": " + differ + " codes differ");
+            for (int c = 0; c < fused.segmentCount(); c++) {
+                assertEquals(general.scales().getFlat(c), fused.scales().getFlat(c),
+                        2 * Math.ulp(general.scales().getFlat(c)), q + " scale " + c);
+                assertEquals(general.zeroPoints().getFlat(c), fused.zeroPoints().getFlat(c), q + " zero point " + c);
+            }
+            assertEquals(general.error().mse(), fused.error().mse(), 1e-3 * general.error().mse());
         }
     }
 
