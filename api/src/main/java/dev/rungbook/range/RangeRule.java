@@ -101,7 +101,9 @@ public interface RangeRule {
      * bin) is compared with its merge into the grid's positive levels ({@code 2^(bits-1)}, 128 for int8, at most 1024)
      * expanded back over P's non-empty bins; the cut with the smallest {@code KL(P || Q)} gives the threshold
      * {@code t = (i + 0.5) * binWidth} and the range {@code [-t, t]} (intersected with [min, max] for asymmetric
-     * grids). Costs about {@code 2048^2} operations per segment, so it suits per-tensor activation ranges best.
+     * grids). Costs about {@code 2048^2} operations per segment, so it suits per-tensor activation ranges best. A
+     * histogram of few values says little: segments with fewer than 32 values per target level (4096 for int8, 256 for
+     * int4) are refused.
      */
     static RangeRule entropy() {
         return EntropyRule.INSTANCE;

@@ -65,10 +65,10 @@ class EntropyRuleTest {
 
     @Test
     void entropyRuleWorksPerChannelAndOnDegenerateSegments() {
-        float[] v = new float[4 * 3000];
-        float[] g = Fixtures.gaussian(4, 3 * 3000);
-        System.arraycopy(g, 0, v, 3000, g.length); // channel 0 all zeros
-        Tensor w = Tensor.of(v, 4, 3000);
+        float[] v = new float[4 * 5000];
+        float[] g = Fixtures.gaussian(4, 3 * 5000);
+        System.arraycopy(g, 0, v, 5000, g.length); // channel 0 all zeros
+        Tensor w = Tensor.of(v, 4, 5000);
         Quantized r = Quantizer.linear(8).range(RangeRule.entropy()).apply(w);
         assertEquals(1f, r.scales().getFlat(0), "zero channel: the zero-range scale");
         for (int c = 1; c < 4; c++) {

@@ -154,6 +154,35 @@ class RangeRuleTest {
     }
 
     @Test
+    void everyRuleWorksPerTensorPerChannelAndPerGroup() {
+        Tensor w = Tensor.of(Fixtures.gaussian(31, 16 * 256), 16, 256).withName("w");
+        RangeRule[] rules = {RangeRule.minMax(), RangeRule.percentile(99.9), RangeRule.mse(20), RangeRule.entropy(),
+            RangeRule.laplace(), RangeRule.gaussian(), RangeRule.running(0.9, 4), RangeRule.fixed(-2, 2)};
+        Quantizer[] grans = {Quantizer.linear(4).perTensor(), Quantizer.linear(4).perChannel(0),
+            Quantizer.linear(4).perChannel(1).asymmetric(), Quantizer.linear(4).perGroup(1, 64)};
+        for (RangeRule rule : rules) {
+            for (Quantizer g : grans) {
+                if (rule.equals(RangeRule.entropy()) && g.granularity().axis() == 1) {
+                    // 16 or 64 values per segment: too few for a histogram (4 bits: 8 levels, 256 values needed)
+                    IllegalArgumentException e = assertThrows(IllegalArgumentException.class,
+                            () -> g.range(rule).apply(w));
+                    assertTrue(e.getMessage().startsWith("tensor 'w' ") && e.getMessage().contains(g.range(rule)
+                            .label() + "): entropy calibration needs at least 256 values"), e.getMessage());
+                    continue;
+                }
+                Quantized r = g.range(rule).apply(w);
+                double rel = r.error().relativeFrobenius();
+                // loose bounds: a running average of a few small batches' extremes clips more than min-max does
+                assertTrue(rel > 0 && rel < 0.5, g.range(rule) + ": relative error " + rel);
+                assertTrue(r.error().sqnrDb() > 6, g.range(rule) + ": sqnr " + r.error().sqnrDb());
+                if (rule.equals(RangeRule.minMax()) || rule.equals(RangeRule.mse(20))) {
+                    assertTrue(rel < 0.2, g.range(rule) + ": relative error " + rel);
+                }
+            }
+        }
+    }
+
+    @Test
     void mseRuleIsNeverWorseThanMinMaxAndClipsHeavyTails() {
         Tensor w = Tensor.of(Fixtures.gaussian(9, 32 * 512), 32, 512);
         for (int bits : new int[] {3, 4, 8}) {
