@@ -29,6 +29,9 @@ final class Engine {
     private final int n;
     private final int[] shape;
     private Segments seg;
+    /** Flat indices of segment {@link #indexSegment}, for rules that need each element's index. */
+    private int[] indices;
+    private int indexSegment = -1;
 
     Engine(Quantizer q, Tensor t, Progress progress) {
         this.q = q;
@@ -63,14 +66,26 @@ final class Engine {
         return axis;
     }
 
-    private void checkFinite() {
+    /** Refuses NaN and infinities (naming the first); returns the largest magnitude. */
+    private float checkFinite() {
+        float amax = 0f;
         for (int i = 0; i < n; i++) {
-            if (!Float.isFinite(data[i])) {
-                throw refuse("value " + data[i] + " at index " + i + " " + position(i)
-                        + "; NaN and infinite values cannot be quantized");
+            amax = Math.max(amax, Math.abs(data[i]));
+        }
+        if (!Float.isFinite(amax)) {
+            for (int i = 0; i < n; i++) {
+                if (!Float.isFinite(data[i])) {
+                    throw refuse("value " + data[i] + " at index " + i + " " + position(i)
+                            + "; NaN and infinite values cannot be quantized");
+                }
             }
         }
+        return amax;
     }
+
+    /** Magnitudes beyond this take the general path, whose double arithmetic cannot overflow float32. */
+    private static final float FUSED_LIMIT = 1e37f;
+    private float maxAbs;
 
     private String position(int flat) {
         int[] idx = new int[shape.length];
@@ -94,7 +109,7 @@ final class Engine {
 
     Quantized run() {
         int axis = resolveAxis();
-        checkFinite();
+        maxAbs = checkFinite();
         seg = new Segments(shape, q.granularity, axis);
         switch (q.kind) {
             case LINEAR:
@@ -191,7 +206,14 @@ final class Engine {
                 return c;
             }
         }
-        return f > 0 ? f : Float.MIN_VALUE;
+        if (!(f > 0)) {
+            return Float.MIN_VALUE;
+        }
+        // never let the end of the range overflow float32 (ranges near Float.MAX_VALUE)
+        while (Float.isInfinite((float) (f * top)) && f > Float.MIN_VALUE) {
+            f = Math.nextDown(f);
+        }
+        return f;
     }
 
     // ------------------------------------------------------------------ linear grids
@@ -231,6 +253,18 @@ final class Engine {
         return q.rounding instanceof ElementRounding ? (ElementRounding) q.rounding : Rounding.nearest();
     }
 
+    /** The flat indices of segment {@code s} (cached for the last segment asked). */
+    private int[] indicesOf(int s) {
+        if (indices == null) {
+            indices = new int[seg.size];
+        }
+        if (indexSegment != s) {
+            seg.flatIndices(s, indices);
+            indexSegment = s;
+        }
+        return indices;
+    }
+
     private double linearSse(float[] v, int from, int to, Range r, int s) {
         float[] p = linearParams(r);
         double sc = p[0];
@@ -239,10 +273,11 @@ final class Engine {
         double qmax = q.qmax();
         ElementRounding rr = elementRounding();
         boolean nearest = rr == Rounding.nearest();
+        int[] idx = nearest ? null : indicesOf(s);
         double sse = 0;
         for (int i = from; i < to; i++) {
             double y = v[i] / sc + z;
-            double c = nearest ? Math.rint(y) : rr.round(y, seg.flatIndex(s, i - from));
+            double c = nearest ? Math.rint(y) : rr.round(y, idx[i - from]);
             c = c < qmin ? qmin : (c > qmax ? qmax : c);
             double e = (float) (sc * (c - z)) - (double) v[i];
             sse += e * e;
@@ -268,8 +303,9 @@ final class Engine {
                 deq[i] = (float) (sc * (c - z));
             }
         } else {
+            int[] idx = indicesOf(s);
             for (int i = 0; i < m; i++) {
-                double c = rr.round(v[i] / sc + z, seg.flatIndex(s, i));
+                double c = rr.round(v[i] / sc + z, idx[i]);
                 c = c < qmin ? qmin : (c > qmax ? qmax : c);
                 codes[i] = (int) c;
                 deq[i] = (float) (sc * (c - z));
@@ -308,7 +344,7 @@ final class Engine {
      */
     private boolean fusedEligible() {
         boolean rows = seg.axis < 0 || (seg.axis == 0 && seg.groupSize == 0);
-        return rows && n > 0 && seg.size > 0 && !q.unsigned && !q.midRise && !q.pow2 && (q.symmetric || !q.narrow)
+        return rows && n > 0 && seg.size > 0 && maxAbs < FUSED_LIMIT && !q.unsigned && !q.midRise && !q.pow2 && (q.symmetric || !q.narrow)
                 && q.range.equals(dev.rungbook.range.RangeRule.minMax()) && q.rounding == Rounding.nearest();
     }
 

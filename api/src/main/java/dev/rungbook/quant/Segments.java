@@ -91,7 +91,22 @@ final class Segments {
     }
 
     int flatIndex(int s, int j) {
+        if (runLength == 0) {
+            return offset(s);
+        }
         return offset(s) + (j / runLength) * runStride + (j % runLength) * elementStride;
+    }
+
+    /** The flat indices of all elements of segment {@code s}, in order, into {@code out[0, size)} (no division). */
+    void flatIndices(int s, int[] out) {
+        int base = offset(s);
+        int p = 0;
+        for (int r = 0; r < runs; r++) {
+            int b = base + r * runStride;
+            for (int k = 0; k < runLength; k++) {
+                out[p++] = b + k * elementStride;
+            }
+        }
     }
 
     boolean contiguous() {

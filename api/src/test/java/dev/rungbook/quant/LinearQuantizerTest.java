@@ -189,6 +189,32 @@ class LinearQuantizerTest {
     }
 
     @Test
+    void extremeAndEmptyInputsGiveFiniteResults() {
+        Tensor huge = Tensor.of(new float[] {-3e38f, 3e38f, 1f, Float.MAX_VALUE}, 2, 2);
+        Tensor tiny = Tensor.of(new float[] {Float.MIN_VALUE, -Float.MIN_VALUE, 0f, 1e-44f}, 2, 2);
+        Tensor empty = Tensor.of(new float[0], 0, 4);
+        Tensor scalar = Tensor.of(new float[] {2.5f});
+        Quantizer[] specs = {Quantizer.linear(8), Quantizer.linear(4).asymmetric().perTensor(),
+            Quantizer.linear(8).range(RangeRule.mse(8)), Quantizer.floatFormat(dev.rungbook.tensor.FloatFormat.E4M3),
+            Quantizer.logarithmic(4), Quantizer.ternary(), Quantizer.linear(16).unsigned().asymmetric()};
+        for (Quantizer q : specs) {
+            for (Tensor t : new Tensor[] {huge, tiny, empty}) {
+                Quantized r = q.apply(t);
+                for (float d : r.dequantized().toFloatArray()) {
+                    assertTrue(Float.isFinite(d), q + " on " + java.util.Arrays.toString(t.toFloatArray()));
+                }
+                for (double m : r.error().values()) {
+                    assertFalse(Double.isNaN(m), q + " metric");
+                }
+            }
+        }
+        assertEquals(2.5f, Quantizer.linear(8).perTensor().apply(scalar).dequantized().getFlat(0));
+        IllegalArgumentException e = assertThrows(IllegalArgumentException.class,
+                () -> Quantizer.linear(8).apply(scalar));
+        assertTrue(e.getMessage().contains("axis 0 is out of range for shape []"), e.getMessage());
+    }
+
+    @Test
     void refusesNonFiniteValuesNamingTensorAndIndex() {
         Tensor x = named("fc1.weight", new float[] {1f, 2f, Float.NaN, Float.POSITIVE_INFINITY}, 2, 2);
         IllegalArgumentException e = assertThrows(IllegalArgumentException.class,
