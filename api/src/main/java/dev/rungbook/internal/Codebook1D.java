@@ -43,8 +43,8 @@ import java.util.Arrays;
  *
  * <p>Cost: sorting aside, the large path makes one pass over the data for block prefix sums (one sum per 64 values,
  * so little extra memory), the program on bins, {@code O(k log n)} per Lloyd step, about
- * {@code k * 2 WINDOW * log2(2 WINDOW)} cell evaluations per windowed round (usually one or two rounds) and one final
- * pass for the MSE.
+ * {@code k * 2 WINDOW * log2(2 WINDOW)} cell evaluations per windowed round (usually one or two rounds) and an
+ * evaluation of the MSE from the prefix sums at the boundaries (relative rounding about {@code 1e-12}).
  */
 public final class Codebook1D {
     /** Largest number of distinct values solved by the exact program in {@link #fit(double[], double[], int,
@@ -327,8 +327,6 @@ public final class Codebook1D {
          */
         abstract void blockPrefix(double mu, int block, double[] pw, double[] ps, double[] pq);
 
-        /** {@code sum w (x - c)^2} and {@code sum w} over items {@code [from, to)}, added into {@code acc}. */
-        abstract void sse(int from, int to, double c, double[] acc);
     }
 
     /** Ascending floats with unit weights (repeats allowed). */
@@ -386,17 +384,6 @@ public final class Codebook1D {
                 ps[b] = s;
                 pq[b] = q;
             }
-        }
-
-        @Override
-        void sse(int from, int to, double c, double[] acc) {
-            double e = 0;
-            for (int i = from; i < to; i++) {
-                double d = x[i] - c;
-                e += d * d;
-            }
-            acc[0] += e;
-            acc[1] += to - from;
         }
     }
 
@@ -463,20 +450,6 @@ public final class Codebook1D {
                 pq[b] = q;
             }
         }
-
-        @Override
-        void sse(int from, int to, double c, double[] acc) {
-            double e = 0;
-            double sw = 0;
-            for (int i = from; i < to; i++) {
-                double wi = w == null ? 1.0 : w[i];
-                double d = x[i] - c;
-                e += wi * d * d;
-                sw += wi;
-            }
-            acc[0] += e;
-            acc[1] += sw;
-        }
     }
 
     private static Result largeFit(Data data, int k, Progress p, String name) {
@@ -536,11 +509,22 @@ public final class Codebook1D {
                 break;
             }
         }
-        double[] acc = new double[2];
+        // MSE from the prefix sums at the boundaries (levels are the cell means): no further pass over the data.
+        double[] at = new double[3];
+        double[] prev = new double[3];
+        prefix.at(0, prev);
+        double sse = 0;
         for (int m = 0; m < k; m++) {
-            data.sse(bounds[m], bounds[m + 1], levels[m], acc);
+            prefix.at(bounds[m + 1], at);
+            double w = at[0] - prev[0];
+            if (w > 0) {
+                double sc = at[1] - prev[1];
+                double c = (at[2] - prev[2]) - sc * sc / w;
+                sse += c > 0 ? c : 0;
+            }
+            System.arraycopy(at, 0, prev, 0, 3);
         }
-        return new Result(levels, midpoints(levels), acc[0] / acc[1], iter, false);
+        return new Result(levels, midpoints(levels), sse / prev[0], iter, false);
     }
 
     /** Prefix sums of weight, centred sum and centred square at any item index, from the block prefixes. */
