@@ -25,12 +25,11 @@ package dev.rungbook.internal;
  *
  * <p>The loops are written for the JIT: the min/max reduction, the rounding (the magic-number trick
  * {@code (v + 1.5 * 2^23) - 1.5 * 2^23}, exact round-half-even for {@code |v| < 2^22}), the clamp and the
- * dequantization are separate simple loops over a row (which stays in L1), and codes are read back from the float
- * bits instead of a float-to-int cast. The {@code dequantOut} array doubles as scratch for the float codes.
+ * dequantization are separate simple loops over a row (which stays in L1); only the final float-to-int code store
+ * is scalar in Java 17. The {@code dequantOut} array doubles as scratch for the float codes.
  */
 public final class Fused {
     private static final float MAGIC = 12582912f; // 1.5 * 2^23
-    private static final int MAGIC_BITS = 0x4B400000; // Float.floatToRawIntBits(MAGIC)
     private static final int CHUNK = 64;
 
     private Fused() {
@@ -64,10 +63,7 @@ public final class Fused {
             float scale = rowParams(w, off, cols, r, bits, symmetric, scalesOut, zeroPointsOut);
             float zp = zeroPointsOut[r];
             roundRow(w, off, cols, bits, symmetric, scale, zp, dequantOut);
-            for (int i = off, end = off + cols; i < end; i++) {
-                codesOut[i] = (byte) (Float.floatToRawIntBits(dequantOut[i] + MAGIC) - MAGIC_BITS);
-            }
-            dequantRow(w, off, cols, scale, zp, dequantOut, r, sqErrOut, sqSignalOut);
+            dequantRow(w, off, cols, scale, zp, dequantOut, codesOut, null, r, sqErrOut, sqSignalOut);
         }
     }
 
@@ -84,10 +80,7 @@ public final class Fused {
             float scale = rowParams(w, off, cols, r, bits, symmetric, scalesOut, zeroPointsOut);
             float zp = zeroPointsOut[r];
             roundRow(w, off, cols, bits, symmetric, scale, zp, dequantOut);
-            for (int i = off, end = off + cols; i < end; i++) {
-                codesOut[i] = (short) (Float.floatToRawIntBits(dequantOut[i] + MAGIC) - MAGIC_BITS);
-            }
-            dequantRow(w, off, cols, scale, zp, dequantOut, r, sqErrOut, sqSignalOut);
+            dequantRow(w, off, cols, scale, zp, dequantOut, null, codesOut, r, sqErrOut, sqSignalOut);
         }
     }
 
@@ -159,9 +152,12 @@ public final class Fused {
         }
     }
 
-    /** Replaces float codes by dequantized values and accumulates the error and signal sums of the row. */
-    private static void dequantRow(float[] w, int off, int cols, float scale, float zp, float[] dq, int r,
-            double[] sqErr, double[] sqSignal) {
+    /**
+     * Stores the codes (into whichever of {@code bytes} and {@code shorts} is non-null), replaces the float codes by
+     * dequantized values and accumulates the error and signal sums of the row.
+     */
+    private static void dequantRow(float[] w, int off, int cols, float scale, float zp, float[] dq, byte[] bytes,
+            short[] shorts, int r, double[] sqErr, double[] sqSignal) {
         // Sums run on values measured in steps (x / scale), so float squares neither overflow nor underflow.
         float inv = 1f / scale;
         double e = 0;
@@ -171,14 +167,30 @@ public final class Fused {
             int stop = Math.min(end, c + CHUNK);
             float ef = 0;
             float sf = 0;
-            for (int i = c; i < stop; i++) {
-                float x = w[i];
-                float d = (dq[i] - zp) * scale;
-                dq[i] = d;
-                float err = (x - d) * inv;
-                float u = x * inv;
-                ef += err * err;
-                sf += u * u;
+            if (bytes != null) {
+                for (int i = c; i < stop; i++) {
+                    float x = w[i];
+                    float t = dq[i];
+                    bytes[i] = (byte) (int) t;
+                    float d = (t - zp) * scale;
+                    dq[i] = d;
+                    float err = (x - d) * inv;
+                    float u = x * inv;
+                    ef += err * err;
+                    sf += u * u;
+                }
+            } else {
+                for (int i = c; i < stop; i++) {
+                    float x = w[i];
+                    float t = dq[i];
+                    shorts[i] = (short) (int) t;
+                    float d = (t - zp) * scale;
+                    dq[i] = d;
+                    float err = (x - d) * inv;
+                    float u = x * inv;
+                    ef += err * err;
+                    sf += u * u;
+                }
             }
             e += ef;
             s += sf;
