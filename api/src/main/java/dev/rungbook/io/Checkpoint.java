@@ -110,8 +110,10 @@ public final class Checkpoint implements AutoCloseable {
     public static Checkpoint open(Path file) {
         Objects.requireNonNull(file, "file");
         try {
-            if (Files.isDirectory(file)) {
-                throw new UncheckedIOException(new IOException(file + ": is a directory, not a checkpoint file"));
+            if (Files.exists(file) && !Files.isRegularFile(file)) {
+                // directories, pipes and devices: never block on reading one
+                throw new UncheckedIOException(file + ": not a regular file",
+                        new IOException(file + ": not a regular file"));
             }
             Formats.Format f = Formats.choose(file);
             Contents c = f.reader.read(file);
@@ -180,6 +182,20 @@ public final class Checkpoint implements AutoCloseable {
             shape[k] = (int) e.shape[k];
         }
         return Tensor.lazy(name, e.dtype, shape, () -> load(e, shape));
+    }
+
+    /**
+     * Every tensor, lazy, in file order (an unmodifiable map from name to {@link #tensor}); handy for converting a
+     * whole checkpoint: {@code Checkpoint.write(out, in.tensors())}.
+     *
+     * @throws CheckpointFormatException if a tensor is too large to load (see {@link #tensor})
+     */
+    public Map<String, Tensor> tensors() {
+        Map<String, Tensor> m = new LinkedHashMap<>();
+        for (String n : entries.keySet()) {
+            m.put(n, tensor(n));
+        }
+        return Collections.unmodifiableMap(m);
     }
 
     private float[] load(Entry e, int[] shape) {

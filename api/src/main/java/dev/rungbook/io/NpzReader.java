@@ -34,7 +34,7 @@ final class NpzReader {
         ZipFile zip;
         try {
             zip = new ZipFile(file.toFile());
-        } catch (ZipException e) {
+        } catch (ZipException | java.io.EOFException e) {
             throw new CheckpointFormatException(file, null, "not a valid zip archive: " + e.getMessage(), e);
         }
         Contents c = new Contents("npz");
@@ -53,6 +53,10 @@ final class NpzReader {
                 c.add(entry(file, zip, ze, name, fileSize));
             }
             return c;
+        } catch (IllegalArgumentException | IllegalStateException e) {
+            // java.util.zip reports some malformed archives (e.g. undecodable member names) this way
+            c.closeAll();
+            throw new CheckpointFormatException(file, null, "not a valid zip archive: " + e.getMessage(), e);
         } catch (RuntimeException | IOException e) {
             c.closeAll();
             throw e;
@@ -74,7 +78,7 @@ final class NpzReader {
         NpyHeader h;
         try (InputStream in = open(file, zip, ze, name)) {
             h = NpyHeader.read(file, name, new StreamSource(in), budget);
-        } catch (ZipException e) {
+        } catch (ZipException | java.io.EOFException e) {
             throw new CheckpointFormatException(file, name, "corrupt zip member: " + e.getMessage(), e);
         }
         long count = NpyReader.checkedCount(file, name, h);
@@ -96,12 +100,10 @@ final class NpzReader {
                 CRC32 crc = new CRC32();
                 try (InputStream raw = open(file, zip, ze, name);
                         CheckedInputStream in = new CheckedInputStream(raw, crc)) {
-                    in.readNBytes(Math.toIntExact(h.dataOffset));
-                    try {
-                        Decode.fromStream(in, dtype, h.order, dst);
-                    } catch (java.io.EOFException e) {
-                        throw new CheckpointFormatException(file, name, "truncated: " + e.getMessage());
+                    if (in.readNBytes(Math.toIntExact(h.dataOffset)).length < h.dataOffset) {
+                        throw new java.io.EOFException("the member ends inside its .npy header");
                     }
+                    Decode.fromStream(in, dtype, h.order, dst);
                     if (in.read() >= 0) {
                         throw new CheckpointFormatException(file, name, "zip member holds more bytes than shape "
                                 + Layout.shapeText(shape) + " of " + dtype + " needs");
@@ -109,6 +111,8 @@ final class NpzReader {
                     if (ze.getCrc() != -1 && crc.getValue() != ze.getCrc()) {
                         throw new CheckpointFormatException(file, name, "CRC-32 mismatch: the data is corrupt");
                     }
+                } catch (java.io.EOFException e) {
+                    throw new CheckpointFormatException(file, name, "truncated: " + e.getMessage(), e);
                 } catch (ZipException e) {
                     throw new CheckpointFormatException(file, name, "corrupt zip member: " + e.getMessage(), e);
                 }

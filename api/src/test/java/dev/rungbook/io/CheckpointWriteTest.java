@@ -323,10 +323,10 @@ class CheckpointWriteTest {
             assertThrows(IllegalArgumentException.class, () -> Checkpoint.write(npz, Map.of("c", c.tensor("count"))));
         }
         try (Checkpoint c = Checkpoint.open(st)) {
-            Map<String, Tensor> again = new LinkedHashMap<>();
+            Map<String, Tensor> again = c.tensors();
+            assertEquals(c.names(), List.copyOf(again.keySet()));
             for (String n : c.names()) {
-                again.put(n, c.tensor(n));
-                assertBitExact(n, in.get(n).toFloatArray(), c.tensor(n).toFloatArray());
+                assertBitExact(n, in.get(n).toFloatArray(), again.get(n).toFloatArray());
             }
             Checkpoint.write(npz, again);
         }

@@ -216,6 +216,40 @@ class HostileInputTest {
         }
     }
 
+    @Test
+    void randomlyCorruptedFilesAreReadOrRefusedCleanly() throws IOException {
+        // A seeded mutation sweep (a fixed stand-in for fuzzing): 1-4 random bytes of a valid file are overwritten;
+        // the reader must either load every tensor or throw CheckpointFormatException, never anything else.
+        byte[] st = safetensors("{\"__metadata__\":{\"k\":\"v\"}," + tensor("a", "F16", "[2,2]", 0, 8) + ","
+                + tensor("b", "I32", "[3]", 8, 20) + "}", new byte[20]);
+        String[] names = {"t.safetensors", "t.npy", "t.npy", "t.npz", "t.npz"};
+        byte[][] bases = {st, Files.readAllBytes(IoFixtures.golden("fortran_234_be.npy")),
+            Files.readAllBytes(IoFixtures.golden("v3_f2_be.npy")), Files.readAllBytes(IoFixtures.golden("stored.npz")),
+            Files.readAllBytes(IoFixtures.golden("deflated.npz"))};
+        java.util.Random rnd = dev.rungbook.testing.Fixtures.random(99);
+        int refused = 0;
+        for (int k = 0; k < bases.length; k++) {
+            for (int trial = 0; trial < 300; trial++) {
+                byte[] m = bases[k].clone();
+                for (int j = rnd.nextInt(4); j >= 0; j--) {
+                    m[rnd.nextInt(m.length)] = (byte) rnd.nextInt(256);
+                }
+                Path p = IoFixtures.write(dir, names[k], m);
+                try (Checkpoint c = Checkpoint.open(p)) {
+                    for (String n : c.names()) {
+                        c.tensor(n).toFloatArray();
+                    }
+                } catch (CheckpointFormatException e) {
+                    refused++;
+                    assertTrue(e.getMessage().startsWith(p + ": "), e.getMessage());
+                } catch (RuntimeException | Error e) {
+                    throw new AssertionError(names[k] + " trial " + trial + ": " + e, e);
+                }
+            }
+        }
+        assertTrue(refused > 100, "the sweep reached the checks: " + refused + " refusals");
+    }
+
     // ---- sharded index -----------------------------------------------------------------------------------------
 
     @Test
@@ -427,6 +461,22 @@ class HostileInputTest {
     void rejectsUnknownFormats() throws IOException {
         assertRefused(IoFixtures.write(dir, "x.bin", "hello world, not a checkpoint".getBytes(StandardCharsets.UTF_8)),
                 "unknown checkpoint format");
+    }
+
+    @Test
+    void refusesFoldersAndOtherNonRegularFiles() throws IOException {
+        UncheckedIOException e = assertThrows(UncheckedIOException.class, () -> Checkpoint.open(dir));
+        assertTrue(e.getMessage().contains("not a regular file"), e.getMessage());
+        Path fifo = dir.resolve("pipe.safetensors");
+        boolean made;
+        try {
+            made = new ProcessBuilder("mkfifo", fifo.toString()).start().waitFor() == 0;
+        } catch (IOException | InterruptedException ex) {
+            made = false;
+        }
+        if (made) { // a named pipe would block a reader forever
+            assertThrows(UncheckedIOException.class, () -> Checkpoint.open(fifo));
+        }
     }
 
     @Test
