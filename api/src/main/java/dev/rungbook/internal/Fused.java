@@ -1,0 +1,206 @@
+package dev.rungbook.internal;
+
+/**
+ * Fused per-row (channel axis 0) linear quantize, dequantize and error sums for a row-major {@code [rows x cols]}
+ * float matrix: the hot path of per-channel int8/intN studies. Internal.
+ *
+ * <p>For each row {@code r} with values {@code x}, at {@code b} bits (2..16), codes are signed integers:
+ * <ul>
+ *   <li>symmetric: {@code q_max = 2^(b-1) - 1}, {@code scale = max|x| / q_max}, zero point 0, codes
+ *       {@code clamp(rint(x / scale), -q_max, q_max)} (the range is symmetric, so {@code -2^(b-1)} is not used);</li>
+ *   <li>asymmetric: {@code q_min = -2^(b-1)}, {@code q_max = 2^(b-1) - 1}; the range {@code [lo, hi] = [min(min x, 0),
+ *       max(max x, 0)]} always contains 0 (common practice, so that 0 is exact); {@code scale = (hi - lo) / (q_max -
+ *       q_min)}, {@code zp = clamp(rint(q_min - lo / scale), q_min, q_max)}, codes
+ *       {@code clamp(rint(x / scale) + zp, q_min, q_max)}.</li>
+ * </ul>
+ * Dequantized values are {@code (code - zp) * scale}. {@code rint} is round half to even. The scale is computed in
+ * double and stored as float; {@code x / scale} and the dequantization are float operations. A row of zeros gets
+ * scale 1 and zero point 0 (all codes 0, exact); a non-zero range whose scale would fall below
+ * {@link Float#MIN_NORMAL} uses {@code MIN_NORMAL} (never a zero or subnormal divisor, never NaN).
+ *
+ * <p>Error sums per row: {@code sqErr = sum (x - dequant)^2}, {@code sqSignal = sum x^2}. They are accumulated on
+ * values measured in steps ({@code (x - dequant) / scale}, {@code x / scale}, so float squares cannot overflow or
+ * underflow whatever the magnitudes), in float over chunks of 64 values and in double across chunks, then multiplied
+ * by {@code scale^2} in double (relative rounding error below about {@code 1e-5}, typically {@code 1e-7}). MSE = {@code sqErr / cols}; SQNR = {@code 10 log10(sqSignal / sqErr)}.
+ *
+ * <p>The loops are written for the JIT: the min/max reduction, the rounding (the magic-number trick
+ * {@code (v + 1.5 * 2^23) - 1.5 * 2^23}, exact round-half-even for {@code |v| < 2^22}), the clamp and the
+ * dequantization are separate simple loops over a row (which stays in L1); only the final float-to-int code store
+ * is scalar in Java 17. The {@code dequantOut} array doubles as scratch for the float codes.
+ */
+public final class Fused {
+    private static final float MAGIC = 12582912f; // 1.5 * 2^23
+    private static final int CHUNK = 64;
+
+    private Fused() {
+    }
+
+    /**
+     * Quantizes every row of {@code w} at {@code bits <= 8} into byte codes. See the class comment for the formulas.
+     *
+     * @param w row-major matrix, at least {@code rows * cols} values, all finite (not modified)
+     * @param rows number of rows (channels), at least 1
+     * @param cols values per row, at least 1
+     * @param bits 2..8
+     * @param symmetric symmetric (zero point 0) or asymmetric with the range stretched to contain 0
+     * @param scalesOut receives {@code rows} scales
+     * @param zeroPointsOut receives {@code rows} zero points (0 when symmetric)
+     * @param codesOut receives {@code rows * cols} signed codes
+     * @param dequantOut receives {@code rows * cols} dequantized values
+     * @param sqErrOut receives {@code rows} sums of squared error, or {@code null}
+     * @param sqSignalOut receives {@code rows} sums of squared input, or {@code null}
+     * @throws IllegalArgumentException for bad sizes or bits, or a NaN/infinite value (naming row, column and index)
+     */
+    public static void quantizeRows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scalesOut,
+            int[] zeroPointsOut, byte[] codesOut, float[] dequantOut, double[] sqErrOut, double[] sqSignalOut) {
+        Checks.inRange(bits, 2, 8, "bits for byte codes");
+        int n = checkSizes(w, rows, cols, scalesOut, zeroPointsOut, codesOut.length, dequantOut, sqErrOut,
+                sqSignalOut);
+        assert n == rows * cols;
+        float[] sums = new float[2];
+        for (int r = 0; r < rows; r++) {
+            int off = r * cols;
+            float scale = rowParams(w, off, cols, r, bits, symmetric, scalesOut, zeroPointsOut);
+            float zp = zeroPointsOut[r];
+            roundRow(w, off, cols, bits, symmetric, scale, zp, dequantOut);
+            dequantRow(w, off, cols, scale, zp, dequantOut, codesOut, null, r, sqErrOut, sqSignalOut);
+        }
+    }
+
+    /**
+     * Quantizes every row of {@code w} at {@code bits <= 16} into short codes; otherwise as
+     * {@link #quantizeRows(float[], int, int, int, boolean, float[], int[], byte[], float[], double[], double[])}.
+     */
+    public static void quantizeRows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scalesOut,
+            int[] zeroPointsOut, short[] codesOut, float[] dequantOut, double[] sqErrOut, double[] sqSignalOut) {
+        Checks.inRange(bits, 2, 16, "bits for short codes");
+        checkSizes(w, rows, cols, scalesOut, zeroPointsOut, codesOut.length, dequantOut, sqErrOut, sqSignalOut);
+        for (int r = 0; r < rows; r++) {
+            int off = r * cols;
+            float scale = rowParams(w, off, cols, r, bits, symmetric, scalesOut, zeroPointsOut);
+            float zp = zeroPointsOut[r];
+            roundRow(w, off, cols, bits, symmetric, scale, zp, dequantOut);
+            dequantRow(w, off, cols, scale, zp, dequantOut, null, codesOut, r, sqErrOut, sqSignalOut);
+        }
+    }
+
+    private static int checkSizes(float[] w, int rows, int cols, float[] scales, int[] zps, int codes,
+            float[] dequant, double[] sqErr, double[] sqSignal) {
+        Checks.require(rows >= 1 && cols >= 1, "matrix must have at least one row and column, got %d x %d", rows,
+                cols);
+        long n = (long) rows * cols;
+        Checks.require(n <= Integer.MAX_VALUE, "matrix %d x %d has more than 2^31-1 values", rows, cols);
+        Checks.require(w.length >= n, "input holds %d values, need %d x %d = %d", w.length, rows, cols, n);
+        Checks.require(codes >= n && dequant.length >= n, "code and dequantized arrays need %d values, have %d and %d",
+                n, codes, dequant.length);
+        Checks.require(scales.length >= rows && zps.length >= rows,
+                "scale and zero-point arrays need %d entries, have %d and %d", rows, scales.length, zps.length);
+        Checks.require(sqErr == null || sqErr.length >= rows, "error sums need %d entries", rows);
+        Checks.require(sqSignal == null || sqSignal.length >= rows, "signal sums need %d entries", rows);
+        return (int) n;
+    }
+
+    /** Min/max of the row, then scale and zero point; returns the scale. */
+    private static float rowParams(float[] w, int off, int cols, int r, int bits, boolean symmetric, float[] scales,
+            int[] zps) {
+        float mn = 0;
+        float mx = 0;
+        for (int i = off, end = off + cols; i < end; i++) {
+            float x = w[i];
+            mn = Math.min(mn, x);
+            mx = Math.max(mx, x);
+        }
+        if (!Float.isFinite(mn) || !Float.isFinite(mx)) { // Math.min/max propagate NaN
+            for (int i = off; i < off + cols; i++) {
+                if (!Float.isFinite(w[i])) {
+                    throw new IllegalArgumentException("value " + w[i] + " at row " + r + ", column " + (i - off)
+                            + " (index " + i + ")");
+                }
+            }
+        }
+        int qmax = (1 << (bits - 1)) - 1;
+        int qmin = -(1 << (bits - 1));
+        double scale;
+        int zp = 0;
+        if (symmetric) {
+            double m = Math.max(-(double) mn, mx);
+            scale = m == 0 ? 1.0 : m / qmax;
+        } else {
+            double range = (double) mx - mn;
+            scale = range == 0 ? 1.0 : range / (qmax - qmin);
+        }
+        float s = (float) scale;
+        if (s < Float.MIN_NORMAL) {
+            s = Float.MIN_NORMAL;
+        }
+        if (!symmetric && mx != mn) {
+            zp = (int) Math.max(qmin, Math.min(qmax, Math.rint(qmin - mn / (double) s)));
+        }
+        scales[r] = s;
+        zps[r] = zp;
+        return s;
+    }
+
+    /** Float codes {@code clamp(rint(x / scale) + zp)} into {@code out}. */
+    private static void roundRow(float[] w, int off, int cols, int bits, boolean symmetric, float scale, float zp,
+            float[] out) {
+        float hi = (1 << (bits - 1)) - 1;
+        float lo = symmetric ? -hi : -hi - 1;
+        for (int i = off, end = off + cols; i < end; i++) {
+            float t = ((w[i] / scale + MAGIC) - MAGIC) + zp;
+            out[i] = Math.max(lo, Math.min(hi, t));
+        }
+    }
+
+    /**
+     * Stores the codes (into whichever of {@code bytes} and {@code shorts} is non-null), replaces the float codes by
+     * dequantized values and accumulates the error and signal sums of the row.
+     */
+    private static void dequantRow(float[] w, int off, int cols, float scale, float zp, float[] dq, byte[] bytes,
+            short[] shorts, int r, double[] sqErr, double[] sqSignal) {
+        // Sums run on values measured in steps (x / scale), so float squares neither overflow nor underflow.
+        float inv = 1f / scale;
+        double e = 0;
+        double s = 0;
+        int end = off + cols;
+        for (int c = off; c < end; c += CHUNK) {
+            int stop = Math.min(end, c + CHUNK);
+            float ef = 0;
+            float sf = 0;
+            if (bytes != null) {
+                for (int i = c; i < stop; i++) {
+                    float x = w[i];
+                    float t = dq[i];
+                    bytes[i] = (byte) (int) t;
+                    float d = (t - zp) * scale;
+                    dq[i] = d;
+                    float err = (x - d) * inv;
+                    float u = x * inv;
+                    ef += err * err;
+                    sf += u * u;
+                }
+            } else {
+                for (int i = c; i < stop; i++) {
+                    float x = w[i];
+                    float t = dq[i];
+                    shorts[i] = (short) (int) t;
+                    float d = (t - zp) * scale;
+                    dq[i] = d;
+                    float err = (x - d) * inv;
+                    float u = x * inv;
+                    ef += err * err;
+                    sf += u * u;
+                }
+            }
+            e += ef;
+            s += sf;
+        }
+        double s2 = (double) scale * scale;
+        if (sqErr != null) {
+            sqErr[r] = e * s2;
+        }
+        if (sqSignal != null) {
+            sqSignal[r] = s * s2;
+        }
+    }
+}

@@ -1,0 +1,149 @@
+package dev.rungbook.study;
+
+import dev.rungbook.io.Checkpoint;
+import dev.rungbook.metrics.ErrorReport;
+import dev.rungbook.progress.Progress;
+import dev.rungbook.quant.Quantized;
+import dev.rungbook.quant.Quantizer;
+import dev.rungbook.tensor.Tensor;
+import java.util.ArrayList;
+import java.util.LinkedHashMap;
+import java.util.List;
+import java.util.Map;
+import java.util.Objects;
+import java.util.function.Predicate;
+import java.util.function.Supplier;
+
+/**
+ * Runs quantizer specs over tensors and tabulates the result:
+ *
+ * <pre>{@code
+ * Study.of(w1, w2).compare(Quantizer.linear(8), Quantizer.linear(4).perGroup(1, 128), Quantizer.nf4()).table();
+ * }</pre>
+ *
+ * <p>Immutable; {@link #compare} does the work, tensor by tensor and spec by spec, reporting each finished pair to
+ * the {@link Progress} listener (task {@code "study"}) and stopping with an
+ * {@link dev.rungbook.progress.OperationInterruptedException} when its thread is interrupted. A spec that does not fit
+ * a tensor stops the study with the quantizer's error, which names both.
+ */
+public final class Study {
+    private final Map<String, Supplier<Tensor>> tensors;
+    private final Progress progress;
+
+    private Study(Map<String, Supplier<Tensor>> tensors, Progress progress) {
+        this.tensors = tensors;
+        this.progress = progress;
+    }
+
+    /**
+     * A study of the given tensors, labelled by their names ({@code tensor0}, {@code tensor1}, ... for unnamed
+     * ones).
+     *
+     * @throws IllegalArgumentException if there are no tensors or two share a name
+     */
+    public static Study of(Tensor... tensors) {
+        Map<String, Tensor> m = new LinkedHashMap<>();
+        for (int i = 0; i < tensors.length; i++) {
+            Tensor t = Objects.requireNonNull(tensors[i], "tensor " + i);
+            String name = t.name() == null ? "tensor" + i : t.name();
+            if (m.put(name, t) != null) {
+                throw new IllegalArgumentException("two tensors of the study are named '" + name + "'");
+            }
+        }
+        return of(m);
+    }
+
+    /**
+     * A study of the given tensors in the map's iteration order, labelled by the keys.
+     *
+     * @throws IllegalArgumentException if the map is empty
+     */
+    public static Study of(Map<String, Tensor> tensors) {
+        if (tensors.isEmpty()) {
+            throw new IllegalArgumentException("a study needs at least one tensor");
+        }
+        Map<String, Supplier<Tensor>> m = new LinkedHashMap<>();
+        tensors.forEach((k, v) -> {
+            Tensor t = Objects.requireNonNull(v, "tensor '" + k + "'");
+            m.put(Objects.requireNonNull(k, "tensor name"), () -> t);
+        });
+        return new Study(m, Progress.silent());
+    }
+
+    /**
+     * A study of every tensor of a checkpoint, in file order, labelled by their names. Tensors are fetched one at a
+     * time during {@link #compare} (and can be freed after their rows are done), so the checkpoint must stay open
+     * until then. Narrow the set with {@link #filter}, e.g. {@code Study.of(ckpt).filter(n -> n.endsWith(".weight"))}.
+     *
+     * @throws IllegalArgumentException if the checkpoint holds no tensor
+     */
+    public static Study of(Checkpoint checkpoint) {
+        Objects.requireNonNull(checkpoint, "checkpoint");
+        Map<String, Supplier<Tensor>> m = new LinkedHashMap<>();
+        for (String name : checkpoint.names()) {
+            m.put(name, () -> checkpoint.tensor(name));
+        }
+        if (m.isEmpty()) {
+            throw new IllegalArgumentException(checkpoint.path() + ": a study needs at least one tensor, the "
+                    + "checkpoint holds none");
+        }
+        return new Study(m, Progress.silent());
+    }
+
+    /**
+     * The same study restricted to the tensors whose names pass {@code keep}.
+     *
+     * @throws IllegalArgumentException if no tensor passes
+     */
+    public Study filter(Predicate<String> keep) {
+        Map<String, Supplier<Tensor>> m = new LinkedHashMap<>();
+        tensors.forEach((k, v) -> {
+            if (keep.test(k)) {
+                m.put(k, v);
+            }
+        });
+        if (m.isEmpty()) {
+            throw new IllegalArgumentException("no tensor of the study passes the filter; names: " + tensors.keySet());
+        }
+        return new Study(m, progress);
+    }
+
+    /** The same study reporting to {@code listener}. */
+    public Study progress(Progress listener) {
+        return new Study(tensors, Objects.requireNonNull(listener, "listener"));
+    }
+
+    /** The tensor names, in order. */
+    public List<String> tensorNames() {
+        return List.copyOf(tensors.keySet());
+    }
+
+    /**
+     * Applies every spec to every tensor (tensor-major order) and collects one row per pair.
+     *
+     * @throws IllegalArgumentException if no spec is given, or a spec does not fit a tensor
+     */
+    public StudyResult compare(Quantizer... specs) {
+        if (specs.length == 0) {
+            throw new IllegalArgumentException("compare needs at least one quantizer");
+        }
+        List<StudyResult.Row> rows = new ArrayList<>();
+        long total = (long) tensors.size() * specs.length;
+        long done = 0;
+        for (Map.Entry<String, Supplier<Tensor>> e : tensors.entrySet()) {
+            Tensor t = e.getValue().get();
+            for (Quantizer q : specs) {
+                Objects.requireNonNull(q, "quantizer");
+                Progress.checkInterrupted("study");
+                Quantized r = q.apply(t, progress);
+                ErrorReport err = r.error();
+                rows.add(new StudyResult.Row(e.getKey(), q.label(), t.size(), r.bitsPerWeight(),
+                        r.bytes(), err.values()));
+                done++;
+                progress.update("study", done, total, err.mse());
+            }
+        }
+        progress.finish("study");
+        return new StudyResult(rows);
+    }
+}
