@@ -34,7 +34,8 @@ class ReadmeSnippetsTest {
     private static final String IMPORTS = imports();
 
     private static String imports() {
-        StringBuilder sb = new StringBuilder("import java.util.*;\nimport java.nio.file.*;\n");
+        StringBuilder sb = new StringBuilder(
+                "import java.util.*;\nimport java.nio.file.*;\nimport tech.tablesaw.api.*;\n");
         for (String p : List.of("tensor", "io", "quant", "range", "round", "metrics", "study", "chart", "progress",
                 "nn")) {
             if (ReadmeSnippetsTest.class.getClassLoader().getResource("dev/rungbook/" + p) != null) {
