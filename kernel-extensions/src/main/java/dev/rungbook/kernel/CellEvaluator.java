@@ -126,9 +126,12 @@ public final class CellEvaluator implements AutoCloseable {
                 return new CellResult.CompileFailure(List.of(problem(code, offset + lead,
                         "the cell ends inside an unfinished statement or declaration")));
             }
-            String source = info.source();
+            String full = info.source();
             int consumed = rest.length() - info.remaining().length();
-            int sourceZero = offset + placeOf(rest, source);
+            // JShell numbers frame lines from the first non-blank character; give it the source from there.
+            int sourceLead = firstCode(full);
+            String source = full.substring(sourceLead);
+            int sourceZero = offset + placeOf(rest, full) + sourceLead;
             List<SnippetEvent> events = shell.eval(source);
             for (SnippetEvent e : events) {
                 if (e.causeSnippet() != null) {

@@ -74,7 +74,7 @@ public final class Tracebacks {
                 kept.add(describeUser(e));
                 library.add(false);
             } else if (!isInternal(e)) {
-                kept.add("    at " + e);
+                kept.add("    at " + describeLibrary(e));
                 library.add(true);
             }
         }
@@ -93,6 +93,19 @@ public final class Tracebacks {
             }
         }
         return false;
+    }
+
+    /** {@code class.method(File.java:line)}, without the module and class loader names. */
+    private static String describeLibrary(StackTraceElement e) {
+        String where;
+        if (e.isNativeMethod()) {
+            where = "native";
+        } else if (e.getFileName() == null) {
+            where = "unknown source";
+        } else {
+            where = e.getLineNumber() >= 0 ? e.getFileName() + ":" + e.getLineNumber() : e.getFileName();
+        }
+        return e.getClassName() + "." + e.getMethodName() + "(" + where + ")";
     }
 
     private String describeUser(StackTraceElement e) {
