@@ -95,6 +95,15 @@ def main():
             check("signature: %s signature is dropped" % label, not got, str(got)[:300])
         check("signature: kernel still answers", value(kc, "40 + 2") == "42")
 
+        # Output of a background thread after its cell finished is dropped with a notice in the next cell.
+        execute(kc, 'new Thread(() -> { try { Thread.sleep(300); } catch (InterruptedException e) { } '
+                    'System.out.println("late"); }).start();')
+        time.sleep(1.0)
+        reply, msgs = execute(kc, "1")
+        notices = [m["content"]["text"] for m in msgs if m["msg_type"] == "stream" and m["content"]["name"] == "stderr"]
+        check("background output after its cell is dropped with a notice",
+              any("arrived after it had finished and were dropped" in t for t in notices), str(notices))
+
         # Exceptions do not harm the kernel.
         reply, msgs = execute(kc, 'throw new IllegalArgumentException("bad value 7");')
         errors = [m["content"] for m in msgs if m["msg_type"] == "error"]

@@ -32,7 +32,10 @@ final class CellRunner implements AutoCloseable {
     private final ThreadGroup group = new ThreadGroup("rungbook-cells");
     private final ExecutorService executor;
     private final ScheduledExecutorService timer;
-    private final Future<CellEvaluator> evaluator;
+    private final java.util.concurrent.CompletableFuture<CellEvaluator> evaluator =
+            new java.util.concurrent.CompletableFuture<>();
+    private final Supplier<CellEvaluator> factory;
+    private final java.util.concurrent.atomic.AtomicBoolean started = new java.util.concurrent.atomic.AtomicBoolean();
     private final AtomicLong cellSerial = new AtomicLong();
     private volatile Thread runnerThread;
     private volatile long runningCell = -1;
@@ -40,7 +43,7 @@ final class CellRunner implements AutoCloseable {
     private volatile boolean stopUsed;
 
     /**
-     * Starts creating the session in the background at once (so that the first cell finds it warm).
+     * A runner whose session is created by {@link #start()} (or by the first use).
      *
      * @param factory creates the evaluator; runs on the cell thread
      * @param timer schedules the delayed stop
@@ -52,14 +55,26 @@ final class CellRunner implements AutoCloseable {
             t.setDaemon(true);
             return t;
         });
-        this.evaluator = executor.submit(() -> {
-            runnerThread = Thread.currentThread();
-            return factory.get();
-        });
+        this.factory = factory;
     }
 
-    /** The session (waits for its creation). */
+    /** Starts creating the session on the cell thread (idempotent; the first cell also starts it). */
+    void start() {
+        if (started.compareAndSet(false, true)) {
+            executor.execute(() -> {
+                runnerThread = Thread.currentThread();
+                try {
+                    evaluator.complete(factory.get());
+                } catch (RuntimeException | Error e) {
+                    evaluator.completeExceptionally(e);
+                }
+            });
+        }
+    }
+
+    /** The session (starts it if needed and waits for its creation). */
     CellEvaluator evaluator() {
+        start();
         try {
             return evaluator.get();
         } catch (InterruptedException e) {

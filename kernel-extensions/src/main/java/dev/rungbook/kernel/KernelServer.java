@@ -61,6 +61,7 @@ public final class KernelServer {
         }
         kernel.becomeHandlerForConnection(connection);
         connection.connect();
+        kernel.startSession();
         connection.waitUntilClose();
         return 0;
     }

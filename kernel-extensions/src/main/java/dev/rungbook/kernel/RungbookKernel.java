@@ -77,7 +77,7 @@ public final class RungbookKernel extends BaseKernel {
     }
 
     /**
-     * A kernel whose session is created in the background at once (so that start-up is not delayed by JShell).
+     * A kernel whose session is created in the background by {@link #startSession()}.
      *
      * @param evaluator creates the session
      * @param outputLimit characters a cell may print before its output is truncated
@@ -100,6 +100,14 @@ public final class RungbookKernel extends BaseKernel {
     @Override
     public String getBanner() {
         return "Rungbook " + VERSION + " (Java " + Runtime.version() + ", JShell)";
+    }
+
+    /**
+     * Starts creating the JShell session in the background; called once the sockets are bound, so that the kernel
+     * answers kernel_info while JShell warms up. The first cell waits for the session.
+     */
+    public void startSession() {
+        runner.start();
     }
 
     private void flushActive() {
