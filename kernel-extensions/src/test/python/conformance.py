@@ -18,7 +18,7 @@ class RungbookKernelTests(jupyter_kernel_test.KernelTests):
     code_stderr = 'System.err.println("oops");'
 
     completion_samples = [
-        {"text": "Math.flo", "matches": {"floor(", "floorDiv(", "floorMod("}},
+        {"text": "dev.rungbook.progress.Progress.sil", "matches": {"silent()"}},
         {"text": "int a = 1;\nTable.crea", "matches": {"create("}},
     ]
 
