@@ -47,6 +47,7 @@ public final class CellEvaluator implements AutoCloseable {
     private final Map<String, Tracebacks.SnippetPlace> places = new ConcurrentHashMap<>();
     private final Tracebacks tracebacks = new Tracebacks(places::get);
     private final List<String> startupProblems = new ArrayList<>();
+    private final SourceDocs sourceDocs = new SourceDocs(CellEvaluator.class.getClassLoader());
 
     private CellEvaluator(JShell shell, ValueCapturingExecutionControl control) {
         this.shell = shell;
@@ -247,11 +248,34 @@ public final class CellEvaluator implements AutoCloseable {
                 out.append("\n\n");
             }
             out.append(d.signature());
-            if (d.javadoc() != null && !d.javadoc().isBlank()) {
-                out.append("\n\n").append(d.javadoc().strip());
+            String javadoc = d.javadoc() != null && !d.javadoc().isBlank() ? d.javadoc() : apiJavadoc(d.signature());
+            if (!javadoc.isBlank()) {
+                out.append("\n\n").append(javadoc.strip());
             }
         }
         return out.toString();
+    }
+
+    /**
+     * Javadoc of a Rungbook API element from the shipped sources, given JShell's signature: either a type's
+     * qualified name or {@code "Ret Type.member(params)"}.
+     */
+    private String apiJavadoc(String signature) {
+        if (signature.startsWith("dev.rungbook.") && !signature.contains(" ") && !signature.contains("(")) {
+            return sourceDocs.javadoc(signature, null, -1);
+        }
+        java.util.regex.Matcher m = java.util.regex.Pattern
+                .compile("(?:\\S+\\s+)?([\\w$]+)\\.([\\w$]+)\\((.*)\\)").matcher(signature);
+        if (!m.matches()) {
+            return "";
+        }
+        List<SourceCodeAnalysis.Documentation> type = analysis.documentation(m.group(1), m.group(1).length(), false);
+        if (type.isEmpty() || !type.get(0).signature().startsWith("dev.rungbook.")) {
+            return "";
+        }
+        String params = m.group(3).strip();
+        int count = params.isEmpty() ? 0 : params.split(",").length;
+        return sourceDocs.javadoc(type.get(0).signature(), m.group(2), count);
     }
 
     /** Whether the cell is complete, needs more lines, or cannot become valid by adding lines. */

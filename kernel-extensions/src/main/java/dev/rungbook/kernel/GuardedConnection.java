@@ -91,7 +91,8 @@ final class GuardedConnection extends JupyterConnection {
                         if (poller.poll(POLL_MILLIS) > 0 && running) {
                             handleOne();
                         }
-                    } catch (RuntimeException e) {
+                    } catch (RuntimeException | Error e) {
+                        // Also an OutOfMemoryError that struck this thread: the loop must outlive it.
                         if (running) {
                             LOG.log(Level.WARNING, name() + ": error in message loop, continuing", e);
                         }

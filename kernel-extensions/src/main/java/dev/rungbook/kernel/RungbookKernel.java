@@ -115,7 +115,8 @@ public final class RungbookKernel extends BaseKernel {
         if (o != null) {
             try {
                 o.flush();
-            } catch (RuntimeException e) {
+            } catch (RuntimeException | Error e) {
+                // A failed flush must not cancel the periodic flushing of later cells.
                 LOG.log(Level.FINE, "flushing cell output failed", e);
             }
         }

@@ -154,6 +154,16 @@ class CellEvaluatorTest {
     }
 
     @Test
+    void inspectsRungbookApiJavadocFromTheShippedSources() {
+        String doc = shell.inspect("Progress.checkInterrupted", "Progress.checkInterrupted".length());
+        assertTrue(doc.contains("void Progress.checkInterrupted(String task)"), doc);
+        // The doc comment in api/src/main/java/dev/rungbook/progress/Progress.java.
+        assertTrue(doc.contains("Long loops call this once per step"), doc);
+        String type = shell.inspect("Progress", 3);
+        assertTrue(type.contains("Receives reports from long-running library work"), type);
+    }
+
+    @Test
     void userStartupSnippetsRunAndTheirProblemsAreReported() {
         try (CellEvaluator other = CellEvaluator.create(System.getProperty("java.class.path"),
                 List.of("import java.util.*;", "import no.such.pkg.*;"), "int fromStartup = 41;\nint broken = ;")) {
