@@ -115,7 +115,7 @@ def main():
         check("stack overflow: reported, traceback folded",
               errors and errors[0]["ename"] == "java.lang.StackOverflowError" and len(errors[0]["traceback"]) < 20,
               str(errors)[:500])
-        reply, msgs = execute(kc, "{ var hog = new ArrayList<long[]>(); while (true) hog.add(new long[1 << 20]); }",
+        reply, msgs = execute(kc, "{ var hog = new ArrayList<long[]>(); while (true) hog.add(new long[1 << 21]); }",
                               timeout=120)
         errors = [m["content"] for m in msgs if m["msg_type"] == "error"]
         check("out of memory: reported", errors and errors[0]["ename"] == "java.lang.OutOfMemoryError", str(errors)[:300])

@@ -9,6 +9,10 @@ import java.io.UncheckedIOException;
 import java.nio.charset.StandardCharsets;
 import java.util.Base64;
 import java.util.Map;
+import java.util.concurrent.CompletableFuture;
+import java.util.concurrent.CompletionException;
+import java.util.concurrent.Executor;
+import java.util.concurrent.Executors;
 import javax.imageio.ImageIO;
 import org.knowm.xchart.VectorGraphicsEncoder;
 import org.knowm.xchart.internal.chartpart.Chart;
@@ -20,26 +24,40 @@ import org.knowm.xchart.internal.chartpart.Chart;
 public final class ChartRenderer {
     /** Pixel density of the PNG relative to the chart's size. */
     public static final int SCALE = 2;
+    /** One daemon thread drawing the SVG while the caller draws the PNG. */
+    private static final Executor ENCODER = Executors.newSingleThreadExecutor(r -> {
+        Thread t = new Thread(r, "rungbook-chart-svg");
+        t.setDaemon(true);
+        return t;
+    });
 
     private ChartRenderer() {
     }
 
-    /** Renders {@code chart} as PNG, SVG and a one-line text description. */
+    /** Renders {@code chart} as PNG, SVG (drawn in parallel on the two encoders) and a one-line description. */
     public static MimeBundle render(Chart<?, ?> chart) {
         int w = chart.getWidth();
         int h = chart.getHeight();
         String title = chart.getTitle() == null || chart.getTitle().isBlank() ? "" : " \"" + chart.getTitle() + "\"";
+        CompletableFuture<String> svg = CompletableFuture.supplyAsync(() -> svg(chart), ENCODER);
+        String png = Base64.getEncoder().encodeToString(png(chart, SCALE));
+        String svgText;
+        try {
+            svgText = svg.join();
+        } catch (CompletionException e) {
+            throw e.getCause() instanceof RuntimeException r ? r : e;
+        }
         return MimeBundle.text(chart.getClass().getSimpleName() + title + " (" + w + "x" + h + ")")
-                .with(MimeBundle.PNG, Base64.getEncoder().encodeToString(png(chart, SCALE)))
+                .with(MimeBundle.PNG, png)
                 .withMetadata(MimeBundle.PNG, Map.of("width", w, "height", h))
-                .with(MimeBundle.SVG, svg(chart));
+                .with(MimeBundle.SVG, svgText);
     }
 
     /** PNG bytes of the chart drawn at {@code scale} times its size. */
     public static byte[] png(Chart<?, ?> chart, int scale) {
         int w = chart.getWidth();
         int h = chart.getHeight();
-        BufferedImage image = new BufferedImage(w * scale, h * scale, BufferedImage.TYPE_INT_ARGB);
+        BufferedImage image = new BufferedImage(w * scale, h * scale, BufferedImage.TYPE_INT_RGB);
         Graphics2D g = image.createGraphics();
         try {
             g.setRenderingHint(RenderingHints.KEY_ANTIALIASING, RenderingHints.VALUE_ANTIALIAS_ON);
