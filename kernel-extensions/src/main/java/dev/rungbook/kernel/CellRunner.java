@@ -21,8 +21,10 @@ import java.util.logging.Logger;
  * <p>Interrupting a cell: every thread of the cells' thread group except the runner's own is interrupted at once, so
  * blocking calls and library loops that check {@code Thread.interrupted()} / {@code Progress.checkInterrupted} end
  * promptly; if the cell is still running after {@link #STOP_GRACE_MILLIS}, JShell's own stop is used (JDK 17:
- * {@code Thread.stop}; JDK 22 and newer: stop checks compiled into cell code). A tight loop in cell code that ignores
- * interrupts cannot be stopped on JDK 18 to 21.
+ * {@code Thread.stop}; newer JDKs such as 25: stop checks that JShell compiles into cell code). On a JDK that has
+ * neither ({@code Thread.stop} is unsupported from JDK 20; which later release added the stop checks is not verified
+ * here, 21 probably lacks them) a tight loop in cell code that ignores interrupts keeps running; the kernel logs this
+ * and must be restarted.
  */
 final class CellRunner implements AutoCloseable {
     /** Time a cell has to react to an interrupt before JShell's stop is used. */

@@ -50,11 +50,19 @@ public final class Notebook {
         }
     }
 
-    /** Clears the running cell's output. */
+    /** Clears the running cell's output now. */
     public static void clearOutput() {
+        clearOutput(false);
+    }
+
+    /**
+     * Clears the running cell's output; with {@code wait} the front end clears only when the next output arrives,
+     * which avoids flicker in loops that redraw.
+     */
+    public static void clearOutput(boolean wait) {
         OutputSink sink = SINK.get();
         if (sink != null) {
-            sink.clear(false);
+            sink.clear(wait);
         }
     }
 
