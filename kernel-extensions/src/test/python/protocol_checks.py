@@ -95,6 +95,11 @@ def main():
             check("signature: %s signature is dropped" % label, not got, str(got)[:300])
         check("signature: kernel still answers", value(kc, "40 + 2") == "42")
 
+        # Malformed messages (too few frames, no delimiter) are dropped whole; the next message is not swallowed.
+        kc.shell_channel.socket.send_multipart([b"<IDS|MSG>", b"0" * 64])
+        kc.shell_channel.socket.send_multipart([b"just one frame"])
+        check("malformed: kernel answers the next message", value(kc, "41 + 2") == "43")
+
         # Output of a background thread after its cell finished is dropped with a notice in the next cell.
         execute(kc, 'new Thread(() -> { try { Thread.sleep(300); } catch (InterruptedException e) { } '
                     'System.out.println("late"); }).start();')

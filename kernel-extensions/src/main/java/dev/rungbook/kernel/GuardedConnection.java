@@ -1,6 +1,32 @@
 package dev.rungbook.kernel;
 
+import com.google.gson.Gson;
+import com.google.gson.GsonBuilder;
+import com.google.gson.JsonElement;
+import com.google.gson.JsonParser;
+import com.google.gson.reflect.TypeToken;
+import java.nio.charset.StandardCharsets;
 import java.security.InvalidKeyException;
+import java.security.MessageDigest;
+import java.util.ArrayList;
+import java.util.Arrays;
+import java.util.List;
+import java.util.Map;
+import org.dflib.jjava.jupyter.kernel.ExpressionValue;
+import org.dflib.jjava.jupyter.kernel.history.HistoryEntry;
+import org.dflib.jjava.jupyter.messages.Header;
+import org.dflib.jjava.jupyter.messages.KernelTimestamp;
+import org.dflib.jjava.jupyter.messages.MessageType;
+import org.dflib.jjava.jupyter.messages.ReplyType;
+import org.dflib.jjava.jupyter.messages.adapters.ExpressionValueAdapter;
+import org.dflib.jjava.jupyter.messages.adapters.HeaderAdapter;
+import org.dflib.jjava.jupyter.messages.adapters.HistoryEntryAdapter;
+import org.dflib.jjava.jupyter.messages.adapters.HistoryRequestAdapter;
+import org.dflib.jjava.jupyter.messages.adapters.KernelTimestampAdapter;
+import org.dflib.jjava.jupyter.messages.adapters.MessageTypeAdapter;
+import org.dflib.jjava.jupyter.messages.adapters.PublishStatusAdapter;
+import org.dflib.jjava.jupyter.messages.adapters.ReplyTypeAdapter;
+import org.dflib.jjava.jupyter.messages.request.HistoryRequest;
 import java.security.NoSuchAlgorithmException;
 import java.util.logging.Level;
 import java.util.logging.Logger;
@@ -17,8 +43,9 @@ import org.zeromq.ZMQ;
 /**
  * The Jupyter connection of the kernel: jjava's heartbeat, stdin and IOPub sockets, with shell and control sockets of
  * our own whose loops survive bad messages. jjava 1.0-a6 checks the HMAC signature of each message, but its shell
- * loop dies on the exception a bad or missing signature raises, which would leave the kernel deaf; here such a
- * message is dropped with a log line and the loop goes on. All sockets bind only to the transport, address and
+ * loop dies on the exception a bad or missing signature raises, which would leave the kernel deaf, and a message with
+ * too few frames makes it read into the next message; here each multipart message is read whole, its signature is
+ * compared in constant time, and a bad, missing or malformed message is dropped with a log line. All sockets bind only to the transport, address and
  * ports of the connection file.
  */
 final class GuardedConnection extends JupyterConnection {
@@ -65,6 +92,22 @@ final class GuardedConnection extends JupyterConnection {
     /** A shell or control socket with a loop that drops unreadable or badly signed messages instead of dying. */
     static final class GuardedShellChannel extends ShellChannel {
         private static final long POLL_MILLIS = 50;
+        /** Limits of one incoming message; larger ones are dropped whole. */
+        static final int MAX_FRAMES = 1024;
+        static final long MAX_BYTES = 256L * 1024 * 1024;
+        private static final byte[] DELIMITER = "<IDS|MSG>".getBytes(StandardCharsets.US_ASCII);
+        private static final java.lang.reflect.Type JSON_MAP = new TypeToken<Map<String, Object>>() { }.getType();
+        /** Parses messages as jjava's sockets do (same adapters). */
+        private static final Gson WIRE = new GsonBuilder()
+                .registerTypeAdapter(KernelTimestamp.class, KernelTimestampAdapter.INSTANCE)
+                .registerTypeAdapter(Header.class, HeaderAdapter.INSTANCE)
+                .registerTypeAdapter(MessageType.class, MessageTypeAdapter.INSTANCE)
+                .registerTypeAdapter(PublishStatus.class, PublishStatusAdapter.INSTANCE)
+                .registerTypeAdapter(HistoryRequest.class, HistoryRequestAdapter.INSTANCE)
+                .registerTypeHierarchyAdapter(ReplyType.class, new ReplyTypeAdapter(new GsonBuilder()
+                        .registerTypeAdapter(HistoryEntry.class, HistoryEntryAdapter.INSTANCE)
+                        .registerTypeAdapter(ExpressionValue.class, ExpressionValueAdapter.INSTANCE).create()))
+                .create();
         private final boolean control;
         private final GuardedConnection connection;
         private volatile boolean running;
@@ -103,6 +146,71 @@ final class GuardedConnection extends JupyterConnection {
             loop.start();
         }
 
+        /**
+         * Reads one whole multipart message (so a short or oversized one cannot swallow the next), checks its HMAC
+         * signature in constant time, and parses it like jjava does.
+         *
+         * @throws SecurityException if the signature is bad or missing
+         * @throws IllegalArgumentException if the frames do not form a Jupyter message
+         */
+        @Override
+        @SuppressWarnings({"unchecked", "rawtypes"})
+        public synchronized Message<?> readMessage() {
+            if (closed) {
+                return null;
+            }
+            List<byte[]> frames = new ArrayList<>();
+            long bytes = 0;
+            boolean tooBig = false;
+            do {
+                byte[] f = recv();
+                if (f == null) {
+                    break;
+                }
+                bytes += f.length;
+                if (frames.size() < MAX_FRAMES && bytes <= MAX_BYTES) {
+                    frames.add(f);
+                } else {
+                    tooBig = true;
+                }
+            } while (hasReceiveMore());
+            if (tooBig) {
+                throw new IllegalArgumentException("message with more than " + MAX_FRAMES + " frames or "
+                        + MAX_BYTES + " bytes");
+            }
+            int d = -1;
+            for (int i = 0; i < frames.size(); i++) {
+                if (Arrays.equals(frames.get(i), DELIMITER)) {
+                    d = i;
+                    break;
+                }
+            }
+            if (d < 0 || frames.size() < d + 6) {
+                throw new IllegalArgumentException("malformed message: " + frames.size() + " frames"
+                        + (d < 0 ? ", no <IDS|MSG> delimiter" : ", too few after the delimiter"));
+            }
+            byte[] header = frames.get(d + 2);
+            byte[] parent = frames.get(d + 3);
+            byte[] metadata = frames.get(d + 4);
+            byte[] content = frames.get(d + 5);
+            String expected = hmacGenerator.calculateSignature(header, parent, metadata, content);
+            if (expected != null && !MessageDigest.isEqual(expected.getBytes(StandardCharsets.US_ASCII),
+                    frames.get(d + 1))) {
+                throw new SecurityException("message signature does not match the connection key");
+            }
+            Header<?> h = WIRE.fromJson(new String(header, StandardCharsets.UTF_8), Header.class);
+            if (h == null || h.getType() == null) {
+                throw new IllegalArgumentException("message without header or type");
+            }
+            JsonElement p = JsonParser.parseString(new String(parent, StandardCharsets.UTF_8));
+            Header<?> parentHeader = p.isJsonObject() && !p.getAsJsonObject().isEmpty()
+                    ? WIRE.fromJson(p, Header.class) : null;
+            Map<String, Object> meta = WIRE.fromJson(new String(metadata, StandardCharsets.UTF_8), JSON_MAP);
+            Object body = WIRE.fromJson(new String(content, StandardCharsets.UTF_8), h.getType().getContentType());
+            return new Message(frames.subList(0, d), h, parentHeader, meta, body,
+                    new ArrayList<>(frames.subList(d + 6, frames.size())));
+        }
+
         private String name() {
             return control ? "control" : "shell";
         }
@@ -116,7 +224,7 @@ final class GuardedConnection extends JupyterConnection {
                 LOG.warning(name() + ": dropped a message with a bad or missing HMAC signature");
                 return;
             } catch (RuntimeException e) {
-                LOG.warning(name() + ": dropped an unreadable message (" + e + ")");
+                LOG.warning(name() + ": dropped an unreadable message (" + e.getMessage() + ")");
                 return;
             }
             if (message == null) {

@@ -47,6 +47,7 @@ class JupyterClientsTest {
         String out = runScript("protocol_checks.py");
         assertTrue(out.contains("0 failure(s)"), out);
         assertTrue(out.contains("dropped a message with a bad or missing HMAC signature"), out);
+        assertTrue(out.contains("dropped an unreadable message"), out);
     }
 
     @Test
