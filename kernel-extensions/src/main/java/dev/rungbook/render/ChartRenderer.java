@@ -76,7 +76,11 @@ public final class ChartRenderer {
         return out.toByteArray();
     }
 
-    /** SVG text of the chart. */
+    /**
+     * SVG text of the chart. (XChart 4.0.3 marks its stream variant deprecated in favour of writing files; the
+     * stream variant is kept so that no temporary file is needed.)
+     */
+    @SuppressWarnings("deprecation")
     public static String svg(Chart<?, ?> chart) {
         ByteArrayOutputStream out = new ByteArrayOutputStream();
         try {
