@@ -22,6 +22,11 @@ final class KernelCommand implements Callable<Integer> {
         return 2;
     }
 
+    static int fail(String message) {
+        System.err.println("rungbook kernel: " + message);
+        return 1;
+    }
+
     /** Where a kernel spec goes: the user's Jupyter folder (default) or an installation prefix. */
     static final class Place {
         @Option(names = "--user", description = "The current user's Jupyter data folder (the default).")
@@ -47,10 +52,15 @@ final class KernelCommand implements Callable<Integer> {
         List<String> jvmOptions = new ArrayList<>();
 
         @Override
-        public Integer call() throws Exception {
-            Path dir = KernelSpec.install(Place.kernelsDir(place), KernelSpec.argv(jvmOptions));
-            System.out.println("Installed kernel spec " + KernelSpec.NAME + " in " + dir);
-            return 0;
+        public Integer call() {
+            Path kernels = Place.kernelsDir(place);
+            try {
+                Path dir = KernelSpec.install(kernels, KernelSpec.argv(jvmOptions));
+                System.out.println("Installed kernel spec " + KernelSpec.NAME + " in " + dir);
+                return 0;
+            } catch (java.io.IOException | RuntimeException e) {
+                return fail("cannot install the kernel spec in " + kernels + ": " + e);
+            }
         }
     }
 
@@ -78,8 +88,14 @@ final class KernelCommand implements Callable<Integer> {
         Path connectionFile;
 
         @Override
-        public Integer call() throws Exception {
-            return KernelServer.serve(connectionFile);
+        public Integer call() {
+            try {
+                return KernelServer.serve(connectionFile);
+            } catch (java.nio.file.NoSuchFileException e) {
+                return fail("connection file " + connectionFile + " does not exist");
+            } catch (java.io.IOException | IllegalArgumentException e) {
+                return fail(e.getMessage());
+            }
         }
     }
 }

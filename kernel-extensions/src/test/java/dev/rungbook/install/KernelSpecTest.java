@@ -66,6 +66,15 @@ class KernelSpecTest {
     }
 
     @Test
+    void runReportsAMissingOrInvalidConnectionFileClearly() throws Exception {
+        Path dir = Fixtures.tempDir("conn");
+        assertEquals(1, Main.run("kernel", "run", dir.resolve("missing.json").toString()));
+        Path bad = dir.resolve("bad.json");
+        Files.writeString(bad, "{\"nope\": 1}");
+        assertEquals(1, Main.run("kernel", "run", bad.toString()));
+    }
+
+    @Test
     void rejectsAbsurdLogoSizes() {
         org.junit.jupiter.api.Assertions.assertThrows(IllegalArgumentException.class, () -> Logo.png(4096));
     }
