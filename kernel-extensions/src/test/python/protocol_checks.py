@@ -144,6 +144,15 @@ def main():
                 and "nterrupt" in errors[0]["ename"] and took < 15
             check("interrupt: %s stops (%.1fs)" % (label, took), ok, str(errors)[:300])
             check("interrupt: kernel answers after %s" % label, value(kc, "kept + 1") == "6")
+
+        # A restart (shutdown_request with restart) gives a clean session in a new process.
+        km.restart_kernel(now=False)
+        kc.wait_for_ready(timeout=120)
+        reply, msgs = execute(kc, "kept")
+        errors = [m["content"] for m in msgs if m["msg_type"] == "error"]
+        check("restart: clean session", reply["status"] == "error" and errors and errors[0]["ename"] == "CompileError",
+              str(errors)[:300])
+        check("restart: kernel answers", value(kc, "1 + 1") == "2")
     finally:
         kc.stop_channels()
         km.shutdown_kernel(now=True)
