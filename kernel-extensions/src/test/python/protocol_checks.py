@@ -109,6 +109,19 @@ def main():
         check("background output after its cell is dropped with a notice",
               any("arrived after it had finished and were dropped" in t for t in notices), str(notices))
 
+        # stop_on_error: requests already waiting when a cell fails are aborted, later ones run.
+        ids = [kc.execute('Thread.sleep(300); throw new IllegalStateException("first fails");'),
+               kc.execute('System.out.println("must not run");'),
+               kc.execute('System.out.println("must not run either");')]
+        statuses = {}
+        while len(statuses) < 3:
+            r = kc.get_shell_msg(timeout=60)
+            if r["parent_header"].get("msg_id") in ids:
+                statuses[r["parent_header"]["msg_id"]] = r["content"]["status"]
+        check("stop_on_error: queued cells are aborted",
+              [statuses[i] for i in ids] == ["error", "aborted", "aborted"], str([statuses[i] for i in ids]))
+        check("stop_on_error: the next cell runs", value(kc, "2 + 3") == "5")
+
         # Exceptions do not harm the kernel.
         reply, msgs = execute(kc, 'throw new IllegalArgumentException("bad value 7");')
         errors = [m["content"] for m in msgs if m["msg_type"] == "error"]

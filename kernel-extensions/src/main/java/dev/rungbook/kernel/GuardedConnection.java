@@ -74,6 +74,15 @@ final class GuardedConnection extends JupyterConnection {
         iopub.sendMessage(new Message<>(null, PublishStatus.MESSAGE_TYPE, PublishStatus.STARTING));
     }
 
+    /**
+     * Answers every execute request already waiting on the shell socket with status {@code aborted} (other waiting
+     * requests are handled normally), as clients expect after a cell failed with {@code stop_on_error}. Must be
+     * called on the shell loop's thread, i.e. from a shell request handler.
+     */
+    void abortQueuedExecuteRequests() {
+        guardedShell.abortQueuedExecuteRequests();
+    }
+
     @Override
     public void close() {
         guardedShell.close();
@@ -112,6 +121,7 @@ final class GuardedConnection extends JupyterConnection {
         private final GuardedConnection connection;
         private volatile boolean running;
         private Thread loop;
+        private ZMQ.Poller poller;
 
         GuardedShellChannel(ZMQ.Context ctx, HMACGenerator hmac, boolean control, GuardedConnection connection) {
             super(ctx, hmac, control, connection, POLL_MILLIS);
@@ -127,6 +137,7 @@ final class GuardedConnection extends JupyterConnection {
             }
             ZMQ.Poller poller = ctx.poller(1);
             poller.register(this, ZMQ.Poller.POLLIN);
+            this.poller = poller;
             running = true;
             loop = new Thread(() -> {
                 while (running) {
@@ -211,6 +222,34 @@ final class GuardedConnection extends JupyterConnection {
                     new ArrayList<>(frames.subList(d + 6, frames.size())));
         }
 
+        @SuppressWarnings({"unchecked", "rawtypes"})
+        void abortQueuedExecuteRequests() {
+            if (poller == null || Thread.currentThread() != loop) {
+                return;
+            }
+            while (running && poller.poll(0) > 0) {
+                Message<?> message;
+                try {
+                    message = readMessage();
+                } catch (RuntimeException e) {
+                    LOG.warning(name() + ": dropped an unreadable message (" + e.getMessage() + ")");
+                    continue;
+                }
+                if (message == null) {
+                    return;
+                }
+                if (MessageType.EXECUTE_REQUEST.equals(message.getHeader().getType())) {
+                    ShellReplyEnvironment env = connection.prepareReplyEnv(this, message);
+                    env.setBusyDeferIdle();
+                    env.reply(new MapReply(MessageType.EXECUTE_REPLY, MessageType.EXECUTE_REQUEST,
+                            Map.of("status", "aborted")));
+                    env.resolveDeferrals();
+                } else {
+                    dispatch(message);
+                }
+            }
+        }
+
         private String name() {
             return control ? "control" : "shell";
         }
@@ -230,6 +269,11 @@ final class GuardedConnection extends JupyterConnection {
             if (message == null) {
                 return;
             }
+            dispatch(message);
+        }
+
+        @SuppressWarnings({"unchecked", "rawtypes"})
+        private void dispatch(Message<?> message) {
             ShellHandler handler = connection.getHandler(message.getHeader().getType());
             if (handler == null) {
                 LOG.info(name() + ": no handler for message type " + message.getHeader().getType().getName());

@@ -60,6 +60,7 @@ public final class KernelServer {
                     + props.getSignatureScheme() + " (" + e.getMessage() + ")", e);
         }
         kernel.becomeHandlerForConnection(connection);
+        kernel.onStopOnError(connection::abortQueuedExecuteRequests);
         connection.connect();
         kernel.startSession();
         connection.waitUntilClose();

@@ -61,6 +61,7 @@ public final class RungbookKernel extends BaseKernel {
     private final ScheduledExecutorService timer;
     private final long outputLimit;
     private volatile CellOutput activeOutput;
+    private volatile Runnable abortQueued = () -> { };
     private CellOutput previousOutput;
     private int previousCount;
     private boolean startupShown;
@@ -100,6 +101,14 @@ public final class RungbookKernel extends BaseKernel {
     @Override
     public String getBanner() {
         return "Rungbook " + VERSION + " (Java " + Runtime.version() + ", JShell)";
+    }
+
+    /**
+     * What to do after a cell failed with {@code stop_on_error}: normally abort the execute requests already waiting
+     * (the connection provides this).
+     */
+    void onStopOnError(Runnable abortQueuedRequests) {
+        this.abortQueued = abortQueuedRequests;
     }
 
     /**
@@ -181,6 +190,9 @@ public final class RungbookKernel extends BaseKernel {
             ErrorReply reply = new ErrorReply(ename, evalue, traceback);
             reply.setExecutionCount(count);
             env.replyError(MessageType.EXECUTE_REPLY.error(), reply);
+            if (request.shouldStopOnError()) {
+                abortQueued.run();
+            }
         }
         if (request.shouldStoreHistory() && !silent) {
             history.add(count, code, plain);
