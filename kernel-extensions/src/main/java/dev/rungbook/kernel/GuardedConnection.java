@@ -227,17 +227,20 @@ final class GuardedConnection extends JupyterConnection {
             if (poller == null || Thread.currentThread() != loop) {
                 return;
             }
-            while (running && poller.poll(0) > 0) {
-                Message<?> message;
+            // First take what is waiting now, then answer: a client reacting to the answers must not be aborted.
+            List<Message<?>> waiting = new ArrayList<>();
+            while (running && poller.poll(0) > 0 && waiting.size() < MAX_FRAMES) {
                 try {
-                    message = readMessage();
+                    Message<?> message = readMessage();
+                    if (message == null) {
+                        break;
+                    }
+                    waiting.add(message);
                 } catch (RuntimeException e) {
                     LOG.warning(name() + ": dropped an unreadable message (" + e.getMessage() + ")");
-                    continue;
                 }
-                if (message == null) {
-                    return;
-                }
+            }
+            for (Message<?> message : waiting) {
                 if (MessageType.EXECUTE_REQUEST.equals(message.getHeader().getType())) {
                     ShellReplyEnvironment env = connection.prepareReplyEnv(this, message);
                     env.setBusyDeferIdle();
