@@ -59,12 +59,33 @@ public final class KernelServer {
             throw new IllegalArgumentException(connectionFile + ": unusable signature scheme "
                     + props.getSignatureScheme() + " (" + e.getMessage() + ")", e);
         }
+        exitWithParent();
         kernel.becomeHandlerForConnection(connection);
         kernel.onStopOnError(connection::abortQueuedExecuteRequests);
         connection.connect();
         kernel.startSession();
         connection.waitUntilClose();
         return 0;
+    }
+
+    /**
+     * Ends the kernel when the process that started it ({@code $JPY_PARENT_PID}, set by Jupyter's kernel manager)
+     * has gone, so that a crashed client leaves no orphan kernel behind.
+     */
+    private static void exitWithParent() {
+        String pid = System.getenv("JPY_PARENT_PID");
+        if (pid == null || pid.isBlank()) {
+            return;
+        }
+        try {
+            ProcessHandle.of(Long.parseLong(pid.strip())).ifPresent(parent -> parent.onExit().thenRun(() -> {
+                Logger.getLogger(KernelServer.class.getName()).warning("parent process " + pid
+                        + " has ended; the kernel exits");
+                System.exit(0);
+            }));
+        } catch (NumberFormatException e) {
+            Logger.getLogger(KernelServer.class.getName()).warning("JPY_PARENT_PID=" + pid + " is not a process id");
+        }
     }
 
     private static long outputLimit() {
