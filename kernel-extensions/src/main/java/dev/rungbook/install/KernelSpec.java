@@ -1,0 +1,198 @@
+package dev.rungbook.install;
+
+import com.google.gson.GsonBuilder;
+import java.io.IOException;
+import java.io.UncheckedIOException;
+import java.net.URISyntaxException;
+import java.nio.charset.StandardCharsets;
+import java.nio.file.AtomicMoveNotSupportedException;
+import java.nio.file.FileVisitResult;
+import java.nio.file.Files;
+import java.nio.file.Path;
+import java.nio.file.SimpleFileVisitor;
+import java.nio.file.StandardCopyOption;
+import java.nio.file.attribute.BasicFileAttributes;
+import java.util.ArrayList;
+import java.util.LinkedHashMap;
+import java.util.List;
+import java.util.Locale;
+import java.util.Map;
+
+/**
+ * The Jupyter kernel spec of Rungbook (folder {@code rungbook}: {@code kernel.json} and two logos) and where it is
+ * installed. The spec runs the current JDK's {@code java} with the given JVM options on the Rungbook jar (or, when
+ * Rungbook runs from class folders, on the current class path) with {@code kernel run {connection_file}}.
+ */
+public final class KernelSpec {
+    /** Name of the kernel spec folder (the kernel name clients use). */
+    public static final String NAME = "rungbook";
+    /** Name shown in notebook front ends. */
+    public static final String DISPLAY_NAME = "Java (Rungbook)";
+    /** Class with the command line's main method. */
+    static final String MAIN_CLASS = "dev.rungbook.cli.Main";
+
+    private KernelSpec() {
+    }
+
+    /** The kernels folder of the current user's Jupyter data folder ({@code $JUPYTER_DATA_DIR} first). */
+    public static Path userKernelsDir() {
+        String data = System.getenv("JUPYTER_DATA_DIR");
+        if (data != null && !data.isBlank()) {
+            return Path.of(data, "kernels");
+        }
+        String os = System.getProperty("os.name", "").toLowerCase(Locale.ROOT);
+        Path home = Path.of(System.getProperty("user.home"));
+        if (os.contains("mac")) {
+            return home.resolve("Library").resolve("Jupyter").resolve("kernels");
+        }
+        if (os.contains("win")) {
+            String appData = System.getenv("APPDATA");
+            return Path.of(appData != null ? appData : home.toString(), "jupyter", "kernels");
+        }
+        String xdg = System.getenv("XDG_DATA_HOME");
+        Path base = xdg != null && !xdg.isBlank() ? Path.of(xdg) : home.resolve(".local").resolve("share");
+        return base.resolve("jupyter").resolve("kernels");
+    }
+
+    /** The kernels folder under an installation prefix ({@code PREFIX/share/jupyter/kernels}). */
+    public static Path prefixKernelsDir(Path prefix) {
+        return prefix.resolve("share").resolve("jupyter").resolve("kernels");
+    }
+
+    /** The command line the spec runs: java, {@code jvmOptions}, the jar or class path, then the kernel command. */
+    public static List<String> argv(List<String> jvmOptions) {
+        List<String> argv = new ArrayList<>();
+        argv.add(Path.of(System.getProperty("java.home"), "bin", isWindows() ? "java.exe" : "java").toString());
+        argv.addAll(jvmOptions);
+        argv.add("-Djava.awt.headless=true");
+        Path jar = runningJar();
+        if (jar != null) {
+            argv.add("-jar");
+            argv.add(jar.toString());
+        } else {
+            argv.add("-cp");
+            argv.add(absoluteClassPath());
+            argv.add(MAIN_CLASS);
+        }
+        argv.add("kernel");
+        argv.add("run");
+        argv.add("{connection_file}");
+        return argv;
+    }
+
+    /** The content of {@code kernel.json} for {@code argv}. */
+    public static String kernelJson(List<String> argv) {
+        Map<String, Object> spec = new LinkedHashMap<>();
+        spec.put("argv", argv);
+        spec.put("display_name", DISPLAY_NAME);
+        spec.put("language", "java");
+        spec.put("interrupt_mode", "message");
+        spec.put("env", Map.of());
+        spec.put("metadata", Map.of("debugger", false));
+        return new GsonBuilder().setPrettyPrinting().disableHtmlEscaping().create().toJson(spec) + "\n";
+    }
+
+    /**
+     * Writes the spec folder {@code kernelsDir/rungbook} atomically: it is built in a temporary folder beside it and
+     * renamed into place, replacing an earlier installation.
+     *
+     * @return the installed folder
+     */
+    public static Path install(Path kernelsDir, List<String> argv) throws IOException {
+        Files.createDirectories(kernelsDir);
+        Path target = kernelsDir.resolve(NAME);
+        Path staging = Files.createTempDirectory(kernelsDir, "." + NAME + "-new-");
+        try {
+            Files.writeString(staging.resolve("kernel.json"), kernelJson(argv), StandardCharsets.UTF_8);
+            Files.write(staging.resolve("logo-32x32.png"), Logo.png(32));
+            Files.write(staging.resolve("logo-64x64.png"), Logo.png(64));
+            Path old = null;
+            if (Files.exists(target)) {
+                old = kernelsDir.resolve("." + NAME + "-old-" + System.nanoTime());
+                move(target, old);
+            }
+            move(staging, target);
+            if (old != null) {
+                deleteTree(old);
+            }
+            return target;
+        } finally {
+            if (Files.exists(staging)) {
+                deleteTree(staging);
+            }
+        }
+    }
+
+    /** Removes {@code kernelsDir/rungbook}; returns whether there was one. */
+    public static boolean remove(Path kernelsDir) throws IOException {
+        Path target = kernelsDir.resolve(NAME);
+        if (!Files.exists(target)) {
+            return false;
+        }
+        Path doomed = kernelsDir.resolve("." + NAME + "-old-" + System.nanoTime());
+        move(target, doomed);
+        deleteTree(doomed);
+        return true;
+    }
+
+    private static void move(Path from, Path to) throws IOException {
+        try {
+            Files.move(from, to, StandardCopyOption.ATOMIC_MOVE);
+        } catch (AtomicMoveNotSupportedException e) {
+            Files.move(from, to);
+        }
+    }
+
+    private static void deleteTree(Path root) throws IOException {
+        Files.walkFileTree(root, new SimpleFileVisitor<>() {
+            @Override
+            public FileVisitResult visitFile(Path file, BasicFileAttributes attrs) throws IOException {
+                Files.delete(file);
+                return FileVisitResult.CONTINUE;
+            }
+
+            @Override
+            public FileVisitResult postVisitDirectory(Path dir, IOException exc) throws IOException {
+                Files.delete(dir);
+                return FileVisitResult.CONTINUE;
+            }
+        });
+    }
+
+    /** The jar Rungbook runs from, or null when it runs from class folders. */
+    static Path runningJar() {
+        try {
+            var source = KernelSpec.class.getProtectionDomain().getCodeSource();
+            if (source == null) {
+                return null;
+            }
+            Path p = Path.of(source.getLocation().toURI());
+            return Files.isRegularFile(p) && p.toString().endsWith(".jar") && isLauncherJar(p) ? p.toAbsolutePath() : null;
+        } catch (URISyntaxException | RuntimeException e) {
+            return null;
+        }
+    }
+
+    private static boolean isLauncherJar(Path jar) {
+        try (var j = new java.util.jar.JarFile(jar.toFile())) {
+            var m = j.getManifest();
+            return m != null && MAIN_CLASS.equals(m.getMainAttributes().getValue("Main-Class"));
+        } catch (IOException e) {
+            throw new UncheckedIOException(jar + ": cannot read jar manifest", e);
+        }
+    }
+
+    private static String absoluteClassPath() {
+        List<String> parts = new ArrayList<>();
+        for (String e : System.getProperty("java.class.path").split(java.io.File.pathSeparator)) {
+            if (!e.isBlank()) {
+                parts.add(Path.of(e).toAbsolutePath().toString());
+            }
+        }
+        return String.join(java.io.File.pathSeparator, parts);
+    }
+
+    private static boolean isWindows() {
+        return System.getProperty("os.name", "").toLowerCase(Locale.ROOT).contains("win");
+    }
+}

@@ -1,0 +1,177 @@
+"""Protocol-level checks of the Rungbook kernel through jupyter_client: output flood, bad signatures,
+interrupts (library call, interruption-checking loop, tight loop), and that the kernel still answers after
+exceptions, a StackOverflowError, an OutOfMemoryError and interrupts.
+
+Run with JUPYTER_PATH pointing at the kernel spec under test. Prints one line per check; exits 1 on failure.
+"""
+import sys
+import threading
+import time
+
+from jupyter_client.manager import start_new_kernel
+from jupyter_client.session import Session
+
+failures = []
+
+
+def check(name, ok, detail=""):
+    print(("PASS " if ok else "FAIL ") + name + ("" if ok else ": " + detail), flush=True)
+    if not ok:
+        failures.append(name)
+
+
+def execute(kc, code, timeout=60, interrupt_after=None, km=None):
+    """Runs code; returns (reply content, list of iopub messages up to idle)."""
+    msg_id = kc.execute(code)
+    if interrupt_after is not None:
+        threading.Timer(interrupt_after, km.interrupt_kernel).start()
+    msgs = []
+    deadline = time.time() + timeout
+    while True:
+        m = kc.get_iopub_msg(timeout=max(1, deadline - time.time()))
+        if m["parent_header"].get("msg_id") != msg_id:
+            continue
+        if m["msg_type"] == "status" and m["content"]["execution_state"] == "idle":
+            break
+        msgs.append(m)
+    while True:
+        r = kc.get_shell_msg(timeout=max(1, deadline - time.time()))
+        if r["parent_header"].get("msg_id") == msg_id:
+            return r["content"], msgs
+
+
+def value(kc, code):
+    reply, msgs = execute(kc, code)
+    for m in msgs:
+        if m["msg_type"] == "execute_result":
+            return m["content"]["data"]["text/plain"]
+    return None
+
+
+def main():
+    km, kc = start_new_kernel(kernel_name="rungbook", startup_timeout=120)
+    try:
+        # Flood: 10^5 lines, all of them, in order, then the idle status.
+        n = 100_000
+        reply, msgs = execute(kc, 'for (int i = 0; i < %d; i++) System.out.println("line " + i);' % n, timeout=120)
+        text = "".join(m["content"]["text"] for m in msgs if m["msg_type"] == "stream" and m["content"]["name"] == "stdout")
+        lines = text.splitlines()
+        streams = sum(1 for m in msgs if m["msg_type"] == "stream")
+        check("flood: all %d lines arrive in order, batched" % n,
+              reply["status"] == "ok" and lines == ["line %d" % i for i in range(n)] and streams < n / 10,
+              "status=%s lines=%d stream messages=%d" % (reply["status"], len(lines), streams))
+
+        # Text without a newline is sent while the cell still runs.
+        msg_id = kc.execute('System.out.print("partial"); Thread.sleep(1500); System.out.println(" end");')
+        first = None
+        start = time.time()
+        while True:
+            m = kc.get_iopub_msg(timeout=30)
+            if m["parent_header"].get("msg_id") != msg_id:
+                continue
+            if m["msg_type"] == "stream" and first is None:
+                first = (time.time() - start, m["content"]["text"])
+            if m["msg_type"] == "status" and m["content"]["execution_state"] == "idle":
+                total = time.time() - start
+                break
+        check("stream: text without newline arrives before the cell ends",
+              first is not None and first[1] == "partial" and first[0] < total - 0.5, str((first, total)))
+        while kc.get_shell_msg(timeout=30)["parent_header"].get("msg_id") != msg_id:
+            pass
+
+        # Bad and missing signatures are dropped; the kernel keeps serving.
+        for label, key in (("bad", b"not-the-key"), ("missing", b"")):
+            rogue = Session(key=key, session=kc.session.session, username="intruder")
+            rogue.send(kc.shell_channel.socket, "execute_request",
+                       content={"code": "System.out.println(\"rogue\")", "silent": False, "store_history": True,
+                                "user_expressions": {}, "allow_stdin": False, "stop_on_error": True})
+            time.sleep(1.0)
+            got = []
+            try:
+                while True:
+                    got.append(kc.get_shell_msg(timeout=0.5))
+            except Exception:
+                pass
+            check("signature: %s signature is dropped" % label, not got, str(got)[:300])
+        check("signature: kernel still answers", value(kc, "40 + 2") == "42")
+
+        # Malformed messages (too few frames, no delimiter) are dropped whole; the next message is not swallowed.
+        kc.shell_channel.socket.send_multipart([b"<IDS|MSG>", b"0" * 64])
+        kc.shell_channel.socket.send_multipart([b"just one frame"])
+        check("malformed: kernel answers the next message", value(kc, "41 + 2") == "43")
+
+        # Output of a background thread after its cell finished is dropped with a notice in the next cell.
+        execute(kc, 'new Thread(() -> { try { Thread.sleep(300); } catch (InterruptedException e) { } '
+                    'System.out.println("late"); }).start();')
+        time.sleep(1.0)
+        reply, msgs = execute(kc, "1")
+        notices = [m["content"]["text"] for m in msgs if m["msg_type"] == "stream" and m["content"]["name"] == "stderr"]
+        check("background output after its cell is dropped with a notice",
+              any("arrived after it had finished and were dropped" in t for t in notices), str(notices))
+
+        # stop_on_error: requests already waiting when a cell fails are aborted, later ones run.
+        ids = [kc.execute('Thread.sleep(300); throw new IllegalStateException("first fails");'),
+               kc.execute('System.out.println("must not run");'),
+               kc.execute('System.out.println("must not run either");')]
+        statuses = {}
+        while len(statuses) < 3:
+            r = kc.get_shell_msg(timeout=60)
+            if r["parent_header"].get("msg_id") in ids:
+                statuses[r["parent_header"]["msg_id"]] = r["content"]["status"]
+        check("stop_on_error: queued cells are aborted",
+              [statuses[i] for i in ids] == ["error", "aborted", "aborted"], str([statuses[i] for i in ids]))
+        check("stop_on_error: the next cell runs", value(kc, "2 + 3") == "5")
+
+        # Exceptions do not harm the kernel.
+        reply, msgs = execute(kc, 'throw new IllegalArgumentException("bad value 7");')
+        errors = [m["content"] for m in msgs if m["msg_type"] == "error"]
+        check("exception: ename is the class name", reply["status"] == "error" and errors
+              and errors[0]["ename"] == "java.lang.IllegalArgumentException"
+              and errors[0]["evalue"] == "bad value 7", str(errors))
+        reply, msgs = execute(kc, "int depth(int n) { return depth(n + 1) + 1; }\ndepth(0)")
+        errors = [m["content"] for m in msgs if m["msg_type"] == "error"]
+        check("stack overflow: reported, traceback folded",
+              errors and errors[0]["ename"] == "java.lang.StackOverflowError" and len(errors[0]["traceback"]) < 20,
+              str(errors)[:500])
+        reply, msgs = execute(kc, "{ var hog = new ArrayList<long[]>(); while (true) hog.add(new long[1 << 21]); }",
+                              timeout=120)
+        errors = [m["content"] for m in msgs if m["msg_type"] == "error"]
+        check("out of memory: reported", errors and errors[0]["ename"] == "java.lang.OutOfMemoryError", str(errors)[:300])
+        check("after errors: kernel still answers and keeps state",
+              value(kc, "int kept = 5;\nkept * 3") == "15")
+
+        # Interrupts: a blocking library call, a loop that checks for interruption, and a tight loop.
+        cases = [
+            ("library call (Thread.sleep)", "Thread.sleep(60_000);", "java.lang.InterruptedException"),
+            ("loop checking Progress.checkInterrupted",
+             "long n = 0; while (true) { dev.rungbook.progress.Progress.checkInterrupted(\"busy loop\"); n++; }",
+             "dev.rungbook.progress.OperationInterruptedException"),
+            ("tight loop", "long m = 0; while (m >= 0) { m = (m + 1) % 1000; }", None),
+        ]
+        for label, code, ename in cases:
+            start = time.time()
+            reply, msgs = execute(kc, code, timeout=60, interrupt_after=1.5, km=km)
+            took = time.time() - start
+            errors = [m["content"] for m in msgs if m["msg_type"] == "error"]
+            ok = reply["status"] == "error" and errors and (ename is None or errors[0]["ename"] == ename) \
+                and "nterrupt" in errors[0]["ename"] and took < 15
+            check("interrupt: %s stops (%.1fs)" % (label, took), ok, str(errors)[:300])
+            check("interrupt: kernel answers after %s" % label, value(kc, "kept + 1") == "6")
+
+        # A restart (shutdown_request with restart) gives a clean session in a new process.
+        km.restart_kernel(now=False)
+        kc.wait_for_ready(timeout=120)
+        reply, msgs = execute(kc, "kept")
+        errors = [m["content"] for m in msgs if m["msg_type"] == "error"]
+        check("restart: clean session", reply["status"] == "error" and errors and errors[0]["ename"] == "CompileError",
+              str(errors)[:300])
+        check("restart: kernel answers", value(kc, "1 + 1") == "2")
+    finally:
+        kc.stop_channels()
+        km.shutdown_kernel(now=True)
+    print("%d failure(s)" % len(failures))
+    return 1 if failures else 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
