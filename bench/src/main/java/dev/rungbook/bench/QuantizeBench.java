@@ -1,0 +1,117 @@
+package dev.rungbook.bench;
+
+import dev.rungbook.internal.Fused;
+import dev.rungbook.quant.Quantized;
+import dev.rungbook.quant.Quantizer;
+import dev.rungbook.tensor.Tensor;
+import java.util.SplittableRandom;
+import java.util.concurrent.TimeUnit;
+import org.openjdk.jmh.annotations.Benchmark;
+import org.openjdk.jmh.annotations.BenchmarkMode;
+import org.openjdk.jmh.annotations.Fork;
+import org.openjdk.jmh.annotations.Level;
+import org.openjdk.jmh.annotations.Measurement;
+import org.openjdk.jmh.annotations.Mode;
+import org.openjdk.jmh.annotations.OutputTimeUnit;
+import org.openjdk.jmh.annotations.Scope;
+import org.openjdk.jmh.annotations.Setup;
+import org.openjdk.jmh.annotations.State;
+import org.openjdk.jmh.annotations.Warmup;
+
+/**
+ * Issue 3's quantizer targets on a 4096 x 4096 float32 matrix, side by side in one run: a plain copy of the matrix
+ * (the floor), the fused per-channel asymmetric int8 kernel (quantize + dequantize + squared-error and signal sums,
+ * which give MSE and SQNR), the same through the public API ({@code apply} + {@code error().sqnrDb()}, which also
+ * builds codes, scales and the full error report), per-group int4 and NF4 through the API, and the 16-level
+ * codebook on 2^24 values. {@code bench/numpy/quantize_baseline.py} does the fused job in NumPy for the ratio.
+ */
+@State(Scope.Benchmark)
+@BenchmarkMode(Mode.AverageTime)
+@OutputTimeUnit(TimeUnit.MILLISECONDS)
+@Warmup(iterations = 3, time = 2)
+@Measurement(iterations = 5, time = 2)
+@Fork(value = 1, jvmArgsAppend = {"-Xmx6g"})
+public class QuantizeBench {
+    static final int N = 4096;
+
+    private float[] w;
+    private Tensor matrix;
+    private Tensor large;
+    private float[] copy;
+    private float[] scales;
+    private int[] zeroPoints;
+    private byte[] codes;
+    private float[] dequant;
+    private double[] sqErr;
+    private double[] sqSignal;
+
+    @Setup(Level.Trial)
+    public void setUp() {
+        SplittableRandom r = new SplittableRandom(2);
+        w = new float[N * N];
+        for (int row = 0; row < N; row++) {
+            double range = Math.exp(r.nextDouble(-3, 1)); // channel ranges differing by ~50x
+            for (int c = 0; c < N; c++) {
+                w[row * N + c] = (float) (range * r.nextGaussian());
+            }
+        }
+        matrix = Tensor.of(w, N, N);
+        float[] big = new float[1 << 24];
+        for (int i = 0; i < big.length; i++) {
+            big[i] = (float) r.nextGaussian();
+        }
+        large = Tensor.of(big, big.length);
+        copy = new float[w.length];
+        scales = new float[N];
+        zeroPoints = new int[N];
+        codes = new byte[w.length];
+        dequant = new float[w.length];
+        sqErr = new double[N];
+        sqSignal = new double[N];
+    }
+
+    /** Floor: one plain copy of the matrix. */
+    @Benchmark
+    public float plainCopy() {
+        System.arraycopy(w, 0, copy, 0, w.length);
+        return copy[copy.length - 1];
+    }
+
+    /** The fused kernel: per-channel asymmetric int8 quantize + dequantize + MSE/SQNR sums. */
+    @Benchmark
+    public double fusedPerChannelInt8() {
+        Fused.quantizeRows(w, N, N, 8, false, scales, zeroPoints, codes, dequant, sqErr, sqSignal);
+        double e = 0;
+        double s = 0;
+        for (int r = 0; r < N; r++) {
+            e += sqErr[r];
+            s += sqSignal[r];
+        }
+        return 10 * Math.log10(s / e);
+    }
+
+    /** The public API for the same job (also builds the full error report: MAE, cosine, KL of histograms...). */
+    @Benchmark
+    public double apiPerChannelInt8() {
+        Quantized q = Quantizer.linear(8).asymmetric().perChannel(0).apply(matrix);
+        return q.error().sqnrDb();
+    }
+
+    /** Per-group (128 along the input axis) symmetric int4 through the API. */
+    @Benchmark
+    public double apiPerGroupInt4() {
+        return Quantizer.linear(4).perGroup(1, 128).apply(matrix).error().sqnrDb();
+    }
+
+    /** NF4 with blocks of 64 through the API. */
+    @Benchmark
+    public double apiNf4() {
+        return Quantizer.nf4().apply(matrix).error().sqnrDb();
+    }
+
+    /** 16-level optimal codebook on 2^24 values, through the API. */
+    @Benchmark
+    public double apiCodebook16On2To24() {
+        return Quantizer.codebook(16).apply(large).error().sqnrDb();
+    }
+}

@@ -1,0 +1,79 @@
+"""Turns the JMH JSON results in bench/results into SUMMARY.md: times and the ratios the issues ask about."""
+import json
+import os
+import platform
+import sys
+from datetime import date
+
+out = sys.argv[1]
+
+
+def load(name):
+    path = os.path.join(out, name)
+    if not os.path.exists(path):
+        return {}
+    with open(path) as f:
+        rows = json.load(f)
+    return {r["benchmark"].rsplit(".", 1)[1]: r for r in rows}
+
+
+def ms(row):
+    m = row["primaryMetric"]
+    unit = m["scoreUnit"]
+    v = m["score"]
+    return v if unit.startswith("ms") else v / 1e6 if unit.startswith("ns") else v * 1000 if unit.startswith("s/") else v
+
+
+lines = [f"# Benchmark summary ({date.today().isoformat()}, {os.cpu_count()} cores, {platform.machine()})", ""]
+lines.append("Each table comes from one JMH run in which the benchmarks ran side by side; times are JMH scores (mean).")
+lines.append("")
+
+read = load("CheckpointReadBench.json")
+if read:
+    base = ms(read["plainFileChannelRead"])
+    ours = ms(read["checkpointLoadAll"])
+    lines += ["## Reading a 1 GiB float32 safetensors file (warm page cache)", "",
+              "| benchmark | ms | GiB/s |", "| --- | ---: | ---: |",
+              f"| plain FileChannel read | {base:.1f} | {1024 / base:.2f} |",
+              f"| Checkpoint.open + every tensor as float32 | {ours:.1f} | {1024 / ours:.2f} |", "",
+              f"Rungbook reads at **{base / ours:.0%}** of the plain read's speed (target: at least 80%).", ""]
+
+bf = load("Bf16DecodeBench.json")
+if bf:
+    dec = ms(bf["decodeBf16"])
+    cp = ms(bf["bulkCopyBaseline"])
+    n = 268435456
+    lines += ["## BF16 to float32, 256M values", "", "| benchmark | ms | G values/s |", "| --- | ---: | ---: |",
+              f"| bulk copy of the bytes (no conversion) | {cp:.1f} | {n / cp / 1e6:.2f} |",
+              f"| library BF16 decoder | {dec:.1f} | {n / dec / 1e6:.2f} |", "",
+              f"Conversion runs at **{n / dec / 1e6:.2f} G values/s** (target: at least 1), "
+              f"{dec / cp:.2f}x the time of the plain copy.", ""]
+
+q = load("QuantizeBench.json")
+if q:
+    copy = ms(q["plainCopy"])
+    fused = ms(q["fusedPerChannelInt8"])
+    api = ms(q["apiPerChannelInt8"])
+    lines += ["## Quantizing a 4096 x 4096 float32 matrix", "", "| benchmark | ms | x plain copy |",
+              "| --- | ---: | ---: |"]
+    for k, label in [("plainCopy", "plain copy of the matrix"),
+                     ("fusedPerChannelInt8", "fused kernel: per-channel asym int8 + dequantize + MSE/SQNR"),
+                     ("apiPerChannelInt8", "API: same spec, apply + full ErrorReport"),
+                     ("apiPerGroupInt4", "API: int4 per-group 128"),
+                     ("apiNf4", "API: NF4 block 64"),
+                     ("apiCodebook16On2To24", "API: codebook k=16 on 2^24 values")]:
+        if k in q:
+            lines.append(f"| {label} | {ms(q[k]):.1f} | {ms(q[k]) / copy:.1f} |")
+    lines.append("")
+    npf = os.path.join(out, "numpy-quantize.json")
+    if os.path.exists(npf):
+        with open(npf) as f:
+            npr = json.load(f)
+        lines.append(f"NumPy {npr['numpy']} doing the fused job: {npr['median_ms']:.1f} ms (median), so the fused kernel "
+                     f"is **{npr['median_ms'] / fused:.1f}x** faster (target 5x) and the API path "
+                     f"{npr['median_ms'] / api:.1f}x.")
+    lines.append(f"The fused kernel takes **{fused / copy:.1f}x** the plain copy (target: within 2x); per-group int4 "
+                 f"and NF4 take {ms(q['apiPerGroupInt4']) / fused:.1f}x and {ms(q['apiNf4']) / fused:.1f}x the fused "
+                 f"figure (target: within 2x).")
+    lines.append("")
+print("\n".join(lines))
