@@ -97,12 +97,15 @@ public final class Codebook1D {
                 throw new IllegalArgumentException(name + ": value at index " + i + " is " + values[i]);
             }
         }
-        float[] sorted = values.clone();
-        FloatSort.sort(sorted);
+        float[] sorted = FloatSort.sortedCopy(values);
+        // Count distinct values; beyond EXACT_LIMIT the exact count only matters for a very large k.
         int distinct = 0;
         for (int i = 0; i < sorted.length; i++) {
             if (i == 0 || sorted[i] != sorted[i - 1]) {
                 distinct++;
+                if (distinct > EXACT_LIMIT && distinct >= k) {
+                    break;
+                }
             }
         }
         if (k < 1) {

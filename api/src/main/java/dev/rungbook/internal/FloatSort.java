@@ -31,11 +31,33 @@ public final class FloatSort {
      * @param a the values (modified)
      */
     public static void sort(float[] a) {
-        int n = a.length;
-        if (n < RADIX_THRESHOLD) {
+        if (a.length < RADIX_THRESHOLD) {
             Arrays.sort(a);
             return;
         }
+        sortInto(a, a);
+    }
+
+    /**
+     * A sorted copy of {@code a} (same order as {@link #sort(float[])}), without a separate copying pass.
+     *
+     * @param a the values (not modified)
+     * @return a new ascending array
+     */
+    public static float[] sortedCopy(float[] a) {
+        if (a.length < RADIX_THRESHOLD) {
+            float[] c = a.clone();
+            Arrays.sort(c);
+            return c;
+        }
+        float[] out = new float[a.length];
+        sortInto(a, out);
+        return out;
+    }
+
+    /** Radix-sorts {@code in} into {@code out} (which may be {@code in}); the first pass reads all of {@code in}. */
+    private static void sortInto(float[] a, float[] out) {
+        int n = a.length;
         int[] c0 = new int[BUCKETS];
         int[] c1 = new int[BUCKETS];
         int[] c2 = new int[BUCKETS];
@@ -60,6 +82,9 @@ public final class FloatSort {
             shifts[passes++] = shift;
         }
         if (passes == 0) {
+            if (out != a) {
+                System.arraycopy(a, 0, out, 0, n);
+            }
             return; // all bit patterns are equal
         }
         // First pass reads the floats, middle passes go between two key buffers, the last writes floats back.
@@ -78,13 +103,13 @@ public final class FloatSort {
         }
         if (passes == 1) {
             for (int i = 0; i < n; i++) {
-                a[i] = Float.intBitsToFloat(unkey(src[i]));
+                out[i] = Float.intBitsToFloat(unkey(src[i]));
             }
             return;
         }
         c = counts[passes - 1];
         shift = shifts[passes - 1];
-        scatterToFloats(src, a, c, shift);
+        scatterToFloats(src, out, c, shift);
     }
 
     // Each pass is its own small method so that the JIT compiles it as a whole method rather than on-stack.

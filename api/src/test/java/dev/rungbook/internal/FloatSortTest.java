@@ -76,6 +76,26 @@ class FloatSortTest {
     }
 
     @Test
+    void sortedCopyLeavesInputAndMatchesSort() {
+        Random r = Fixtures.random(4);
+        for (int n : new int[] {0, 100, 4096, 70_000}) {
+            float[] v = new float[n];
+            for (int i = 0; i < n; i++) {
+                v[i] = r.nextInt(3) == 0 ? -0.0f : (float) r.nextGaussian();
+            }
+            float[] before = v.clone();
+            float[] copy = FloatSort.sortedCopy(v);
+            assertArrayEquals(before, v, "input unchanged");
+            float[] expected = v.clone();
+            Arrays.sort(expected); // Source: the JDK's Arrays.sort(float[]) total order
+            assertArrayEquals(expected, copy);
+        }
+        float[] same = new float[5000];
+        Arrays.fill(same, 7f);
+        assertArrayEquals(same, FloatSort.sortedCopy(same));
+    }
+
+    @Test
     void compressesToDistinctValuesWithCounts() {
         float[] sorted = {-2f, -2f, -0.0f, 0.0f, 0.0f, 1.5f, 3f, 3f, 3f};
         double[][] vc = FloatSort.distinctWithCounts(sorted);
