@@ -820,7 +820,7 @@ public final class Charts {
      */
     public static void savePng(IChart chart, Path path, int scale) {
         Objects.requireNonNull(path, "path");
-        AtomicFiles.write(path, toPngBytes(chart, scale));
+        writeAtomically(path, toPngBytes(chart, scale));
     }
 
     /**
@@ -831,10 +831,19 @@ public final class Charts {
      */
     public static void saveSvg(IChart chart, Path path) {
         Objects.requireNonNull(path, "path");
-        AtomicFiles.write(path, toSvgString(chart).getBytes(StandardCharsets.UTF_8));
+        writeAtomically(path, toSvgString(chart).getBytes(StandardCharsets.UTF_8));
     }
 
     private static IllegalArgumentException cannotDraw(IChart chart, RuntimeException e) {
         return new IllegalArgumentException("chart '" + chart.getTitle() + "' cannot be drawn: " + e.getMessage(), e);
+    }
+
+    private static void writeAtomically(Path target, byte[] bytes) {
+        try {
+            dev.rungbook.internal.AtomicFile.write(target, bytes);
+        } catch (java.io.IOException e) {
+            Path abs = target.toAbsolutePath();
+            throw new java.io.UncheckedIOException("cannot write " + abs + ": " + e.getMessage(), e);
+        }
     }
 }

@@ -1,5 +1,6 @@
 package dev.rungbook.io;
 
+import dev.rungbook.internal.AtomicFile;
 import dev.rungbook.tensor.DType;
 import dev.rungbook.tensor.Tensor;
 import java.io.IOException;

@@ -1,4 +1,4 @@
-package dev.rungbook.io;
+package dev.rungbook.internal;
 
 import java.io.IOException;
 import java.nio.channels.FileChannel;
@@ -7,23 +7,42 @@ import java.nio.file.Files;
 import java.nio.file.Path;
 import java.nio.file.StandardCopyOption;
 import java.nio.file.StandardOpenOption;
+import java.nio.file.attribute.PosixFileAttributeView;
+import java.nio.file.attribute.PosixFilePermission;
+import java.nio.file.attribute.PosixFilePermissions;
+import java.nio.ByteBuffer;
+import java.util.Set;
 import java.util.concurrent.ThreadLocalRandom;
 
 /**
  * Writes a file atomically: the content goes to a new temporary file in the target's folder, which is forced to disk
  * and then renamed over the target in one step ({@code ATOMIC_MOVE}). Readers see the old file or the new one, never a
- * half-written one; on any failure the temporary file is deleted and the target is untouched.
+ * half-written one; on any failure the temporary file is deleted and the target is untouched. A replaced file keeps its
+ * permissions; a new one gets {@code rw-r--r--} (where the file system has POSIX permissions). Every Rungbook writer
+ * (checkpoints, charts, reports, notebooks) goes through here. Internal.
  */
-final class AtomicFile {
+public final class AtomicFile {
     private AtomicFile() {
     }
 
     /** Writes the content. */
-    interface Body {
+    public interface Body {
+        /** Writes everything to {@code out}. */
         void write(FileChannel out) throws IOException;
     }
 
-    static void write(Path target, Body body) throws IOException {
+    /** Replaces {@code target} with {@code bytes}, atomically. */
+    public static void write(Path target, byte[] bytes) throws IOException {
+        write(target, ch -> {
+            ByteBuffer b = ByteBuffer.wrap(bytes);
+            while (b.hasRemaining()) {
+                ch.write(b);
+            }
+        });
+    }
+
+    /** Replaces {@code target} with what {@code body} writes, atomically. */
+    public static void write(Path target, Body body) throws IOException {
         Path abs = target.toAbsolutePath();
         Path dir = abs.getParent();
         if (Files.isDirectory(abs)) {
@@ -40,6 +59,7 @@ final class AtomicFile {
                 body.write(ch);
                 ch.force(true);
             }
+            keepOrOpenPermissions(tmp, abs);
             try {
                 Files.move(tmp, abs, StandardCopyOption.ATOMIC_MOVE, StandardCopyOption.REPLACE_EXISTING);
             } catch (AtomicMoveNotSupportedException e) {
@@ -52,6 +72,15 @@ final class AtomicFile {
                 Files.deleteIfExists(tmp);
             }
         }
+    }
+
+    private static void keepOrOpenPermissions(Path tmp, Path target) throws IOException {
+        if (!Files.getFileStore(tmp).supportsFileAttributeView(PosixFileAttributeView.class)) {
+            return;
+        }
+        Set<PosixFilePermission> perms = Files.exists(target) ? Files.getPosixFilePermissions(target)
+                : PosixFilePermissions.fromString("rw-r--r--");
+        Files.setPosixFilePermissions(tmp, perms);
     }
 
     /** Makes the rename durable where the platform allows opening a folder (Linux, macOS); elsewhere a no-op. */
