@@ -1,0 +1,343 @@
+package dev.rungbook.metrics;
+
+import dev.rungbook.internal.TensorAccess;
+import dev.rungbook.tensor.Tensor;
+import dev.rungbook.tensor.TensorView;
+import java.util.Arrays;
+import java.util.List;
+import java.util.Locale;
+import java.util.Objects;
+import tech.tablesaw.api.DoubleColumn;
+import tech.tablesaw.api.IntColumn;
+import tech.tablesaw.api.StringColumn;
+import tech.tablesaw.api.Table;
+
+/**
+ * How far an approximation (typically a dequantized tensor) is from a reference tensor of the same shape. Sums are
+ * accumulated in double. With {@code e = approximation - reference}, {@code x = reference}, {@code y = approximation}
+ * and {@code n} elements:
+ * <ul>
+ *   <li>{@link #mse()} = {@code sum(e^2) / n}; {@link #rmse()} its square root; {@link #mae()} = {@code sum|e| / n};
+ *       {@link #maxAbsError()} = {@code max|e|} (all 0 for an empty tensor);</li>
+ *   <li>{@link #sqnrDb()} = {@code 10 log10(sum(x^2) / sum(e^2))}: {@code +Infinity} when the error is 0 (exact
+ *       reconstruction, including a zero signal), {@code -Infinity} when the signal is 0 but the error is not;</li>
+ *   <li>{@link #cosine()} = {@code x.y / (|x| |y|)}: 1 when both are zero, 0 when exactly one is;</li>
+ *   <li>{@link #frobenius()} = {@code |e|} (Frobenius norm of the error); {@link #relativeFrobenius()} =
+ *       {@code |e| / |x|}: 0 when the error is 0, {@code +Infinity} when only the signal is 0;</li>
+ *   <li>{@link #klDivergence()}: {@code KL(P || Q)} in nats between histograms of {@code x} (P) and {@code y} (Q),
+ *       256 equal bins over {@code [min, max]} of both tensors together; Q is mixed with 10^-6 of the uniform
+ *       distribution ({@code Q' = (1 - 1e-6) Q + 1e-6 / bins}) so that the value is finite; exactly 0 when the two
+ *       histograms are identical.</li>
+ * </ul>
+ * No metric is ever NaN. Immutable.
+ */
+public final class ErrorReport {
+    /** The number of histogram bins of {@link #klDivergence()}. */
+    public static final int KL_BINS = 256;
+    /** The share of the uniform distribution mixed into Q by {@link #klDivergence()}. */
+    public static final double KL_MIX = 1e-6;
+
+    private final Tensor reference;
+    private final Tensor approximation;
+    private final int channelAxis;
+    private final Sums sums;
+    private final double kl;
+
+    private ErrorReport(Tensor reference, Tensor approximation, int channelAxis, Sums sums, double kl) {
+        this.reference = reference;
+        this.approximation = approximation;
+        this.channelAxis = channelAxis;
+        this.sums = sums;
+        this.kl = kl;
+    }
+
+    /**
+     * The error of {@code approximation} against {@code reference}; the per-channel table runs over axis 0.
+     *
+     * @throws IllegalArgumentException if the shapes differ (both named) or a tensor holds NaN/infinity
+     */
+    public static ErrorReport of(Tensor reference, Tensor approximation) {
+        Objects.requireNonNull(reference, "reference");
+        Objects.requireNonNull(approximation, "approximation");
+        if (!Arrays.equals(reference.shape(), approximation.shape())) {
+            throw new IllegalArgumentException("cannot compare " + reference.label() + " of shape "
+                    + Arrays.toString(reference.shape()) + " with " + approximation.label() + " of shape "
+                    + Arrays.toString(approximation.shape()));
+        }
+        float[] x = TensorAccess.data(reference);
+        float[] y = TensorAccess.data(approximation);
+        checkFinite(reference, x);
+        checkFinite(approximation, y);
+        Sums s = new Sums();
+        s.add(x, y);
+        double kl = klDivergence(x, y, KL_BINS);
+        return new ErrorReport(reference, approximation, reference.rank() > 0 ? 0 : -1, s, kl);
+    }
+
+    private static void checkFinite(Tensor t, float[] d) {
+        for (int i = 0; i < d.length; i++) {
+            if (!Float.isFinite(d[i])) {
+                throw new IllegalArgumentException(t.label() + ": value " + d[i] + " at index " + i
+                        + "; an error report needs finite values");
+            }
+        }
+    }
+
+    /** The same report with its per-channel table over {@code axis} (-1: one row for the whole tensor). */
+    public ErrorReport withChannelAxis(int axis) {
+        if (axis < -1 || axis >= reference.rank()) {
+            throw new IllegalArgumentException(reference.label() + ": axis " + axis + " is out of range for shape "
+                    + Arrays.toString(reference.shape()));
+        }
+        return new ErrorReport(reference, approximation, axis, sums, kl);
+    }
+
+    /** Running sums over pairs of values. */
+    private static final class Sums {
+        long n;
+        double sse;
+        double sae;
+        double maxAbs;
+        double ssx;
+        double ssy;
+        double dot;
+
+        void add(float[] x, float[] y) {
+            for (int i = 0; i < x.length; i++) {
+                add(x[i], y[i]);
+            }
+        }
+
+        void add(double a, double b) {
+            double e = b - a;
+            n++;
+            sse += e * e;
+            double ae = Math.abs(e);
+            sae += ae;
+            if (ae > maxAbs) {
+                maxAbs = ae;
+            }
+            ssx += a * a;
+            ssy += b * b;
+            dot += a * b;
+        }
+
+        double mse() {
+            return n == 0 ? 0 : sse / n;
+        }
+
+        double mae() {
+            return n == 0 ? 0 : sae / n;
+        }
+
+        double sqnr() {
+            if (sse == 0) {
+                return Double.POSITIVE_INFINITY;
+            }
+            if (ssx == 0) {
+                return Double.NEGATIVE_INFINITY;
+            }
+            return 10 * Math.log10(ssx / sse);
+        }
+
+        double cosine() {
+            if (ssx == 0 && ssy == 0) {
+                return 1;
+            }
+            if (ssx == 0 || ssy == 0) {
+                return 0;
+            }
+            double c = dot / (Math.sqrt(ssx) * Math.sqrt(ssy));
+            return Math.max(-1, Math.min(1, c));
+        }
+
+        double relFrobenius() {
+            if (sse == 0) {
+                return 0;
+            }
+            return ssx == 0 ? Double.POSITIVE_INFINITY : Math.sqrt(sse / ssx);
+        }
+    }
+
+    /**
+     * {@code KL(P || Q)} in nats between {@code bins}-bin histograms of {@code x} and {@code y} over their common
+     * range, with Q mixed with {@link #KL_MIX} of the uniform distribution (see the class description).
+     */
+    static double klDivergence(float[] x, float[] y, int bins) {
+        if (x.length == 0) {
+            return 0;
+        }
+        double lo = Double.POSITIVE_INFINITY;
+        double hi = Double.NEGATIVE_INFINITY;
+        for (int i = 0; i < x.length; i++) {
+            lo = Math.min(lo, Math.min(x[i], y[i]));
+            hi = Math.max(hi, Math.max(x[i], y[i]));
+        }
+        long[] p = histogram(x, lo, hi, bins);
+        long[] q = histogram(y, lo, hi, bins);
+        if (Arrays.equals(p, q)) {
+            return 0;
+        }
+        double n = x.length;
+        double kl = 0;
+        for (int b = 0; b < bins; b++) {
+            if (p[b] == 0) {
+                continue;
+            }
+            double pb = p[b] / n;
+            double qb = (1 - KL_MIX) * (q[b] / n) + KL_MIX / bins;
+            kl += pb * Math.log(pb / qb);
+        }
+        return Math.max(0, kl);
+    }
+
+    /** Counts of {@code v} in {@code bins} equal bins over [lo, hi]; bin {@code floor((v - lo) / width)}, top bin closed. */
+    static long[] histogram(float[] v, double lo, double hi, int bins) {
+        long[] h = new long[bins];
+        double width = (hi - lo) / bins;
+        for (float f : v) {
+            int b = width > 0 ? (int) ((f - lo) / width) : 0;
+            h[Math.max(0, Math.min(bins - 1, b))]++;
+        }
+        return h;
+    }
+
+    /** The reference tensor. */
+    public Tensor reference() {
+        return reference;
+    }
+
+    /** The approximation. */
+    public Tensor approximation() {
+        return approximation;
+    }
+
+    /** The number of elements compared. */
+    public long count() {
+        return sums.n;
+    }
+
+    /** Mean squared error. */
+    public double mse() {
+        return sums.mse();
+    }
+
+    /** Root mean squared error. */
+    public double rmse() {
+        return Math.sqrt(sums.mse());
+    }
+
+    /** Mean absolute error. */
+    public double mae() {
+        return sums.mae();
+    }
+
+    /** Largest absolute error. */
+    public double maxAbsError() {
+        return sums.maxAbs;
+    }
+
+    /** Signal-to-quantization-noise ratio in dB ({@code +Infinity} for an exact reconstruction). */
+    public double sqnrDb() {
+        return sums.sqnr();
+    }
+
+    /** Cosine similarity of reference and approximation. */
+    public double cosine() {
+        return sums.cosine();
+    }
+
+    /** Frobenius (Euclidean) norm of the error. */
+    public double frobenius() {
+        return Math.sqrt(sums.sse);
+    }
+
+    /** Frobenius norm of the error divided by that of the reference. */
+    public double relativeFrobenius() {
+        return sums.relFrobenius();
+    }
+
+    /** KL divergence of the value histograms in nats (see the class description). */
+    public double klDivergence() {
+        return kl;
+    }
+
+    /** The axis of the per-channel table (-1: the whole tensor is one row). */
+    public int channelAxis() {
+        return channelAxis;
+    }
+
+    /** Column names of {@link #perChannel()}: the index column, then the metrics. */
+    public static final List<String> CHANNEL_COLUMNS = List.of("channel", "mse", "rmse", "mae", "max_abs_error",
+            "sqnr_db", "cosine", "rel_frobenius");
+
+    /** The per-channel breakdown over {@link #channelAxis()}. */
+    public Table perChannel() {
+        return perChannel(channelAxis);
+    }
+
+    /**
+     * One row per channel of {@code axis} with columns {@link #CHANNEL_COLUMNS}: {@code channel} (int), then the
+     * metrics of that channel alone (double).
+     */
+    public Table perChannel(int axis) {
+        int channels;
+        if (axis == -1) {
+            channels = 1;
+        } else {
+            if (axis < 0 || axis >= reference.rank()) {
+                throw new IllegalArgumentException(reference.label() + ": axis " + axis
+                        + " is out of range for shape " + Arrays.toString(reference.shape()));
+            }
+            channels = reference.dim(axis);
+        }
+        IntColumn idx = IntColumn.create("channel");
+        DoubleColumn[] cols = new DoubleColumn[CHANNEL_COLUMNS.size() - 1];
+        for (int k = 0; k < cols.length; k++) {
+            cols[k] = DoubleColumn.create(CHANNEL_COLUMNS.get(k + 1));
+        }
+        for (int c = 0; c < channels; c++) {
+            TensorView a = axis == -1 ? reference.all() : reference.channel(axis, c);
+            TensorView b = axis == -1 ? approximation.all() : approximation.channel(axis, c);
+            float[] xa = a.toFloatArray();
+            float[] ya = b.toFloatArray();
+            Sums s = new Sums();
+            s.add(xa, ya);
+            idx.append(c);
+            cols[0].append(s.mse());
+            cols[1].append(Math.sqrt(s.mse()));
+            cols[2].append(s.mae());
+            cols[3].append(s.maxAbs);
+            cols[4].append(s.sqnr());
+            cols[5].append(s.cosine());
+            cols[6].append(s.relFrobenius());
+        }
+        Table t = Table.create("error per channel of axis " + axis + " of " + reference.label(), idx);
+        t.addColumns(cols);
+        return t;
+    }
+
+    /** Metric names of {@link #toTable()}, in order. */
+    public static final List<String> METRICS = List.of("mse", "rmse", "mae", "max_abs_error", "sqnr_db", "cosine",
+            "frobenius", "rel_frobenius", "kl_divergence");
+
+    /** The metrics in the order of {@link #METRICS}. */
+    public double[] values() {
+        return new double[] {mse(), rmse(), mae(), maxAbsError(), sqnrDb(), cosine(), frobenius(),
+            relativeFrobenius(), klDivergence()};
+    }
+
+    /** A two-column table ({@code metric}, {@code value}), one row per entry of {@link #METRICS}. */
+    public Table toTable() {
+        StringColumn m = StringColumn.create("metric", METRICS);
+        DoubleColumn v = DoubleColumn.create("value", values());
+        return Table.create("error of " + reference.label(), m, v);
+    }
+
+    /** One line, for example {@code ErrorReport tensor 'w': mse 1.2e-05, sqnr 38.41 dB, cosine 0.99993}. */
+    @Override
+    public String toString() {
+        return String.format(Locale.ROOT, "ErrorReport %s: mse %.4g, rmse %.4g, max|e| %.4g, sqnr %.2f dB, cosine %.6f",
+                reference.label(), mse(), rmse(), maxAbsError(), sqnrDb(), cosine());
+    }
+}

@@ -1,0 +1,536 @@
+package dev.rungbook.quant;
+
+import dev.rungbook.internal.TensorAccess;
+import dev.rungbook.progress.Progress;
+import dev.rungbook.range.Range;
+import dev.rungbook.range.RangeContext;
+import dev.rungbook.round.ElementRounding;
+import dev.rungbook.round.GridAssignment;
+import dev.rungbook.round.LayerRounding;
+import dev.rungbook.round.Rounding;
+import dev.rungbook.tensor.FloatFormat;
+import dev.rungbook.tensor.Tensor;
+import java.util.Arrays;
+
+/**
+ * Runs one {@link Quantizer} on one tensor: validation, then one pass per segment (gather, range, scale, round,
+ * dequantize, scatter). Package-private; the hot loops read the tensor's backing array directly.
+ */
+final class Engine {
+    private final Quantizer q;
+    private final Tensor t;
+    private final Progress progress;
+    private final String task;
+    private final float[] data;
+    private final int n;
+    private final int[] shape;
+    private Segments seg;
+
+    Engine(Quantizer q, Tensor t, Progress progress) {
+        this.q = q;
+        this.t = t;
+        this.progress = progress;
+        this.task = "quantize " + (t.name() == null ? "tensor" : t.name()) + " " + q.label();
+        this.data = TensorAccess.data(t);
+        this.n = t.size();
+        this.shape = t.shape();
+    }
+
+    private IllegalArgumentException refuse(String what) {
+        return new IllegalArgumentException(t.label() + ": " + what + " (spec " + q.label() + ")");
+    }
+
+    // ------------------------------------------------------------------ validation
+
+    private int resolveAxis() {
+        Granularity g = q.granularity;
+        if (g.kind() == Granularity.Kind.TENSOR) {
+            return -1;
+        }
+        int axis = g.axis() == -1 ? shape.length - 1 : g.axis();
+        if (axis < 0 || axis >= shape.length) {
+            throw refuse("axis " + (g.axis() == -1 ? "-1 (last)" : Integer.toString(g.axis()))
+                    + " is out of range for shape " + Arrays.toString(shape));
+        }
+        if (g.kind() == Granularity.Kind.GROUP && shape[axis] % g.groupSize() != 0) {
+            throw refuse("group size " + g.groupSize() + " does not divide dimension " + axis + " of shape "
+                    + Arrays.toString(shape));
+        }
+        return axis;
+    }
+
+    private void checkFinite() {
+        for (int i = 0; i < n; i++) {
+            if (!Float.isFinite(data[i])) {
+                throw refuse("value " + data[i] + " at index " + i + " " + position(i)
+                        + "; NaN and infinite values cannot be quantized");
+            }
+        }
+    }
+
+    private String position(int flat) {
+        int[] idx = new int[shape.length];
+        int r = flat;
+        for (int k = shape.length - 1; k >= 0; k--) {
+            idx[k] = shape[k] == 0 ? 0 : r % shape[k];
+            r = shape[k] == 0 ? 0 : r / shape[k];
+        }
+        return Arrays.toString(idx);
+    }
+
+    private String segmentName(int s) {
+        if (seg.axis < 0) {
+            return "whole tensor";
+        }
+        return seg.groupSize == 0 ? "channel " + s + " of axis " + seg.axis
+                : "group " + s + " (size " + seg.groupSize + " along axis " + seg.axis + ")";
+    }
+
+    // ------------------------------------------------------------------ driver
+
+    Quantized run() {
+        int axis = resolveAxis();
+        checkFinite();
+        seg = new Segments(shape, q.granularity, axis);
+        switch (q.kind) {
+            case LINEAR:
+                return q.rounding instanceof LayerRounding ? linearLayer() : linear();
+            case FLOAT:
+                return floatFormat();
+            case LOG:
+                return levelsGrid(logLevels(q.bits));
+            case BINARY:
+            case TERNARY:
+                return signGrid();
+            default:
+                throw new UnsupportedOperationException(q.label() + ": this grid is not available yet");
+        }
+    }
+
+    private void step(int s) {
+        Progress.checkInterrupted(task);
+        if (seg.count > 1 && ((s & 63) == 63 || s == seg.count - 1)) {
+            progress.update(task, s + 1, seg.count, Double.NaN);
+        }
+    }
+
+    private Tensor wrapDequantized(float[] deq) {
+        return TensorAccess.wrap(deq, shape, t.dtype(), t.name());
+    }
+
+    /** A range context for segment {@code s}; {@code err} evaluates a candidate range. */
+    private RangeContext context(int s, boolean symmetric, int bits, SegmentError err) {
+        return new RangeContext() {
+            @Override
+            public String label() {
+                return t.label() + " " + segmentName(s) + " (" + q.label() + ")";
+            }
+
+            @Override
+            public int bits() {
+                return bits;
+            }
+
+            @Override
+            public boolean symmetric() {
+                return symmetric;
+            }
+
+            @Override
+            public int[] shape() {
+                return shape.clone();
+            }
+
+            @Override
+            public int flatIndex(int j) {
+                return seg.flatIndex(s, j);
+            }
+
+            @Override
+            public double squaredError(float[] values, int from, int to, Range range) {
+                return err.sse(values, from, to, range, s);
+            }
+        };
+    }
+
+    /** Squared error of a segment's values at a candidate range. */
+    @FunctionalInterface
+    private interface SegmentError {
+        double sse(float[] values, int from, int to, Range range, int segment);
+    }
+
+    // ------------------------------------------------------------------ scale helpers
+
+    /** The smallest power of two at least {@code s} (s positive and finite). */
+    static double pow2Ceil(double s) {
+        double p = Math.scalb(1.0, Math.getExponent(s));
+        return p >= s ? p : 2 * p;
+    }
+
+    /**
+     * The float32 scale near {@code s} (within two ulps) for which {@code (float)(scale * top) == (float) target},
+     * if there is one, else {@code (float) s}: so that the value at the end of the range is reproduced exactly.
+     */
+    static float fitScale(double s, double target, double top) {
+        float f = (float) s;
+        float goal = (float) target;
+        float[] tries = {f, Math.nextUp(f), Math.nextDown(f), Math.nextUp(Math.nextUp(f)),
+            Math.nextDown(Math.nextDown(f))};
+        for (float c : tries) {
+            if (c > 0 && (float) (c * top) == goal) {
+                return c;
+            }
+        }
+        return f > 0 ? f : Float.MIN_VALUE;
+    }
+
+    // ------------------------------------------------------------------ linear grids
+
+    /** {scale, zero point} of a linear grid for a clipping range. */
+    private float[] linearParams(Range r) {
+        int qmin = q.qmin();
+        int qmax = q.qmax();
+        if (q.symmetric) {
+            double a = q.unsigned ? Math.max(0.0, r.hi()) : r.absMax();
+            double top = q.midRise ? qmax + 0.5 : qmax;
+            float z = q.midRise ? -0.5f : 0f;
+            if (!(a > 0)) {
+                return new float[] {1f, z};
+            }
+            double s = a / top;
+            float sf = q.pow2 ? (float) pow2Ceil(s) : fitScale(s, a, top);
+            return new float[] {sf, z};
+        }
+        double lo = Math.min(r.lo(), 0.0);
+        double hi = Math.max(r.hi(), 0.0);
+        double s = (hi - lo) / ((double) qmax - qmin);
+        if (!(s > 0)) {
+            return new float[] {1f, (float) Math.max(qmin, Math.min(qmax, 0))};
+        }
+        float sf = q.pow2 ? (float) pow2Ceil(s) : Math.max((float) s, Float.MIN_VALUE);
+        double z = Math.max(qmin, Math.min(qmax, Math.rint(qmin - lo / sf)));
+        if (!q.pow2) {
+            sf = hi > 0 ? fitScale(sf, hi, qmax - z) : fitScale(sf, lo, qmin - z);
+        }
+        return new float[] {sf, (float) z};
+    }
+
+    /** The element rule used for the linear grid (learned layer rules fall back to nearest inside range searches). */
+    private ElementRounding elementRounding() {
+        return q.rounding instanceof ElementRounding ? (ElementRounding) q.rounding : Rounding.nearest();
+    }
+
+    private double linearSse(float[] v, int from, int to, Range r, int s) {
+        float[] p = linearParams(r);
+        double sc = p[0];
+        double z = p[1];
+        double qmin = q.qmin();
+        double qmax = q.qmax();
+        ElementRounding rr = elementRounding();
+        boolean nearest = rr == Rounding.nearest();
+        double sse = 0;
+        for (int i = from; i < to; i++) {
+            double y = v[i] / sc + z;
+            double c = nearest ? Math.rint(y) : rr.round(y, seg.flatIndex(s, i - from));
+            c = c < qmin ? qmin : (c > qmax ? qmax : c);
+            double e = (float) (sc * (c - z)) - (double) v[i];
+            sse += e * e;
+        }
+        return sse;
+    }
+
+    /**
+     * Quantizes {@code v[0, m)} with scale {@code sc} and zero point {@code z}: codes into {@code codes}, values into
+     * {@code deq}. The nearest-even rule runs as a plain loop without calls.
+     */
+    private void linearSegment(float[] v, int m, float scF, float zF, int s, ElementRounding rr, int[] codes,
+            float[] deq) {
+        double sc = scF;
+        double z = zF;
+        double qmin = q.qmin();
+        double qmax = q.qmax();
+        if (rr == Rounding.nearest()) {
+            for (int i = 0; i < m; i++) {
+                double c = Math.rint(v[i] / sc + z);
+                c = c < qmin ? qmin : (c > qmax ? qmax : c);
+                codes[i] = (int) c;
+                deq[i] = (float) (sc * (c - z));
+            }
+        } else {
+            for (int i = 0; i < m; i++) {
+                double c = rr.round(v[i] / sc + z, seg.flatIndex(s, i));
+                c = c < qmin ? qmin : (c > qmax ? qmax : c);
+                codes[i] = (int) c;
+                deq[i] = (float) (sc * (c - z));
+            }
+        }
+    }
+
+    private Quantized linear() {
+        int m = seg.size;
+        float[] buf = new float[m];
+        float[] out = new float[m];
+        int[] cbuf = new int[m];
+        float[] deq = new float[n];
+        float[] scales = new float[seg.count];
+        float[] zps = new float[seg.count];
+        Codes codes = Codes.allocate(n, q.bits, !q.unsigned);
+        ElementRounding rr = elementRounding();
+        for (int s = 0; s < seg.count; s++) {
+            step(s);
+            seg.gather(data, s, buf);
+            Range r = q.range.range(buf, 0, m, context(s, q.symmetric, q.bits, this::linearSse));
+            float[] p = linearParams(r);
+            scales[s] = p[0];
+            zps[s] = p[1];
+            linearSegment(buf, m, p[0], p[1], s, rr, cbuf, out);
+            seg.scatter(out, s, deq);
+            seg.scatterCodes(cbuf, s, codes);
+        }
+        progress.finish(task);
+        return finish(deq, codes, scales, zps, null, linearOverhead());
+    }
+
+    private long linearOverhead() {
+        long perSegment = (q.pow2 ? 8 : 32) + (q.symmetric ? 0 : q.bits);
+        return perSegment * seg.count;
+    }
+
+    private Quantized linearLayer() {
+        int m = seg.size;
+        float[] buf = new float[m];
+        float[] scales = new float[seg.count];
+        float[] zps = new float[seg.count];
+        for (int s = 0; s < seg.count; s++) {
+            step(s);
+            seg.gather(data, s, buf);
+            Range r = q.range.range(buf, 0, m, context(s, q.symmetric, q.bits, this::linearSse));
+            float[] p = linearParams(r);
+            scales[s] = p[0];
+            zps[s] = p[1];
+        }
+        GridAssignment grid = GridAssignment.of(shape, seg.axis, seg.groupSize, q.qmin(), q.qmax(), scales, zps);
+        LayerRounding rule = (LayerRounding) q.rounding;
+        int[] c = rule.codes(t, grid, progress);
+        if (c == null || c.length != n) {
+            throw refuse("rounding '" + rule.label() + "' returned " + (c == null ? "no codes" : c.length + " codes")
+                    + " for " + n + " elements");
+        }
+        Codes codes = Codes.allocate(n, q.bits, !q.unsigned);
+        float[] deq = new float[n];
+        for (int i = 0; i < n; i++) {
+            if (c[i] < grid.qmin() || c[i] > grid.qmax()) {
+                throw refuse("rounding '" + rule.label() + "' returned code " + c[i] + " at index " + i + " "
+                        + position(i) + ", outside [" + grid.qmin() + ", " + grid.qmax() + "]");
+            }
+            int s = grid.segmentOf(i);
+            codes.set(i, c[i]);
+            deq[i] = (float) ((double) scales[s] * (c[i] - (double) zps[s]));
+        }
+        progress.finish(task);
+        return finish(deq, codes, scales, zps, null, linearOverhead());
+    }
+
+    // ------------------------------------------------------------------ float formats
+
+    private float floatScale(Range r) {
+        FloatFormat f = q.format;
+        if (!q.scaled) {
+            return 1f;
+        }
+        double a = r.absMax();
+        if (!(a > 0)) {
+            return 1f;
+        }
+        double s = a / f.max();
+        return q.pow2 ? (float) pow2Ceil(s) : fitScale(s, a, f.max());
+    }
+
+    private double floatSse(float[] v, int from, int to, Range r, int s) {
+        FloatFormat f = q.format;
+        double sc = floatScale(r);
+        double sse = 0;
+        for (int i = from; i < to; i++) {
+            float y = f.roundSaturating((float) (v[i] / sc));
+            double e = (float) (sc * y) - (double) v[i];
+            sse += e * e;
+        }
+        return sse;
+    }
+
+    private Quantized floatFormat() {
+        FloatFormat f = q.format;
+        int m = seg.size;
+        float[] buf = new float[m];
+        float[] out = new float[m];
+        int[] cbuf = new int[m];
+        float[] deq = new float[n];
+        float[] scales = new float[seg.count];
+        Codes codes = Codes.allocate(n, f.bitWidth(), false);
+        for (int s = 0; s < seg.count; s++) {
+            step(s);
+            seg.gather(data, s, buf);
+            float sc = 1f;
+            if (q.scaled) {
+                Range r = q.range.range(buf, 0, m, context(s, true, f.bitWidth(), this::floatSse));
+                sc = floatScale(r);
+            }
+            scales[s] = sc;
+            for (int i = 0; i < m; i++) {
+                float y = f.roundSaturating((float) (buf[i] / (double) sc));
+                cbuf[i] = f.encode(y);
+                out[i] = (float) ((double) sc * y);
+            }
+            seg.scatter(out, s, deq);
+            seg.scatterCodes(cbuf, s, codes);
+        }
+        progress.finish(task);
+        long overhead = q.scaled ? (long) (q.pow2 ? 8 : 32) * seg.count : 0;
+        return finish(deq, codes, scales, null, null, overhead);
+    }
+
+    // ------------------------------------------------------------------ fixed-level grids (log, NF4)
+
+    /** The levels of a b-bit logarithmic grid, ascending: -1, -1/2, ..., 0, ..., 1/2, 1. */
+    static float[] logLevels(int bits) {
+        int mags = (1 << (bits - 1)) - 1;
+        float[] l = new float[2 * mags + 1];
+        for (int e = 0; e < mags; e++) {
+            float v = (float) Math.scalb(1.0, -e);
+            l[e] = -v;
+            l[l.length - 1 - e] = v;
+        }
+        l[mags] = 0f;
+        return l;
+    }
+
+    /** Index of the level nearest {@code y} in ascending {@code levels} (midpoints {@code mids}); ties go down. */
+    static int nearestLevel(double[] mids, double y) {
+        int lo = 0;
+        int hi = mids.length;
+        while (lo < hi) {
+            int mid = (lo + hi) >>> 1;
+            if (y > mids[mid]) {
+                lo = mid + 1;
+            } else {
+                hi = mid;
+            }
+        }
+        return lo;
+    }
+
+    static double[] midpoints(float[] levels) {
+        double[] m = new double[levels.length - 1];
+        for (int i = 0; i < m.length; i++) {
+            m[i] = ((double) levels[i] + levels[i + 1]) / 2;
+        }
+        return m;
+    }
+
+    private float levelScale(Range r) {
+        double a = r.absMax();
+        if (!(a > 0)) {
+            return 1f;
+        }
+        return q.pow2 ? (float) pow2Ceil(a) : (float) a;
+    }
+
+    private Quantized levelsGrid(float[] levels) {
+        double[] mids = midpoints(levels);
+        int m = seg.size;
+        float[] buf = new float[m];
+        float[] out = new float[m];
+        int[] cbuf = new int[m];
+        float[] deq = new float[n];
+        float[] scales = new float[seg.count];
+        Codes codes = Codes.allocate(n, q.bits, false);
+        SegmentError err = (v, from, to, r, s) -> {
+            double sc = levelScale(r);
+            double sse = 0;
+            for (int i = from; i < to; i++) {
+                double e = (float) (sc * levels[nearestLevel(mids, v[i] / sc)]) - (double) v[i];
+                sse += e * e;
+            }
+            return sse;
+        };
+        for (int s = 0; s < seg.count; s++) {
+            step(s);
+            seg.gather(data, s, buf);
+            Range r = q.range.range(buf, 0, m, context(s, true, q.bits, err));
+            float sc = levelScale(r);
+            scales[s] = sc;
+            for (int i = 0; i < m; i++) {
+                int c = nearestLevel(mids, buf[i] / (double) sc);
+                cbuf[i] = c;
+                out[i] = (float) ((double) sc * levels[c]);
+            }
+            seg.scatter(out, s, deq);
+            seg.scatterCodes(cbuf, s, codes);
+        }
+        progress.finish(task);
+        float[][] lv = new float[][] {levels.clone()};
+        return finish(deq, codes, scales, null, lv, (long) (q.pow2 ? 8 : 32) * seg.count);
+    }
+
+    // ------------------------------------------------------------------ binary and ternary
+
+    private Quantized signGrid() {
+        boolean ternary = q.kind == Quantizer.Kind.TERNARY;
+        int m = seg.size;
+        float[] buf = new float[m];
+        float[] out = new float[m];
+        int[] cbuf = new int[m];
+        float[] deq = new float[n];
+        float[] scales = new float[seg.count];
+        Codes codes = Codes.allocate(n, ternary ? 2 : 1, true);
+        for (int s = 0; s < seg.count; s++) {
+            step(s);
+            seg.gather(data, s, buf);
+            double sumAbs = 0;
+            for (int i = 0; i < m; i++) {
+                sumAbs += Math.abs(buf[i]);
+            }
+            double meanAbs = m == 0 ? 0 : sumAbs / m;
+            double alpha;
+            if (ternary) {
+                double delta = q.thresholdFactor * meanAbs;
+                double kept = 0;
+                int count = 0;
+                for (int i = 0; i < m; i++) {
+                    double a = Math.abs(buf[i]);
+                    if (a > delta) {
+                        kept += a;
+                        count++;
+                    }
+                }
+                alpha = count == 0 ? 0 : kept / count;
+                for (int i = 0; i < m; i++) {
+                    cbuf[i] = Math.abs(buf[i]) > delta ? (buf[i] > 0 ? 1 : -1) : 0;
+                }
+            } else {
+                alpha = meanAbs;
+                for (int i = 0; i < m; i++) {
+                    cbuf[i] = buf[i] >= 0 ? 1 : -1;
+                }
+            }
+            float af = (float) alpha;
+            scales[s] = af;
+            for (int i = 0; i < m; i++) {
+                out[i] = af * cbuf[i];
+            }
+            seg.scatter(out, s, deq);
+            seg.scatterCodes(cbuf, s, codes);
+        }
+        progress.finish(task);
+        return finish(deq, codes, scales, null, null, 32L * seg.count);
+    }
+
+    // ------------------------------------------------------------------ result
+
+    private Quantized finish(float[] deq, Codes codes, float[] scales, float[] zps, float[][] levels,
+            long overheadBits) {
+        int errorAxis = q.granularity.kind() == Granularity.Kind.CHANNEL ? seg.axis : (shape.length > 0 ? 0 : -1);
+        return new Quantized(q, t, wrapDequantized(deq), codes, scales, seg.scaleShape(), zps, levels,
+                overheadBits, errorAxis);
+    }
+}
