@@ -368,14 +368,14 @@ public final class LinearAlgebra {
      * {@code y[0:n] += alpha * x[0:n]}. Both arrays are indexed alike, which lets the JIT vectorise the loop even
      * though it cannot prove that {@code x} and {@code y} are different arrays.
      */
-    static void axpy(int n, float alpha, float[] x, float[] y) {
+    public static void axpy(int n, float alpha, float[] x, float[] y) {
         for (int j = 0; j < n; j++) {
             y[j] += alpha * x[j];
         }
     }
 
     /** {@code y[0:n] += alpha * x[0:n]} (see the float version). */
-    static void axpy(int n, double alpha, double[] x, double[] y) {
+    public static void axpy(int n, double alpha, double[] x, double[] y) {
         for (int j = 0; j < n; j++) {
             y[j] += alpha * x[j];
         }
