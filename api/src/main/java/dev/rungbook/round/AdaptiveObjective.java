@@ -18,6 +18,8 @@ import java.util.stream.IntStream;
 final class AdaptiveObjective {
     static final double ZETA = 1.1;
     static final double GAMMA = -0.1;
+    /** |V| beyond which h(V) is clipped to 0 or 1: ln(11) (sigmoid 1/12 or 11/12), with a margin of 1e-9. */
+    private static final double CLIPPED = Math.log(11.0) + 1e-9;
 
     final int rows;
     final int cols;
@@ -175,7 +177,20 @@ final class AdaptiveObjective {
             for (int r = r0; r < r1; r++) {
                 double rs = 0;
                 for (int e = r * cols; e < (r + 1) * cols; e++) {
-                    double sig = 1.0 / (1.0 + Math.exp(-v[e]));
+                    double ve = v[e];
+                    if (ve > CLIPPED || ve < -CLIPPED) {
+                        // h is exactly 0 or 1 (sigmoid below 1/12 or above 11/12): no gradient, no regulariser,
+                        // no transcendental functions. After annealing this is most weights.
+                        double hv = ve > 0 ? 1.0 : 0.0;
+                        h[e] = (float) hv;
+                        double code = base[e] + hv;
+                        code = code < qmin ? qmin : (code > qmax ? qmax : code);
+                        soft[e] = (float) (scale[e] * (code - zero[e]));
+                        dSoft[e] = 0f;
+                        dReg[e] = 0f;
+                        continue;
+                    }
+                    double sig = 1.0 / (1.0 + Math.exp(-ve));
                     double hv = sig * (ZETA - GAMMA) + GAMMA;
                     boolean inside = hv > 0 && hv < 1;
                     hv = hv <= 0 ? 0 : (hv >= 1 ? 1 : hv);
