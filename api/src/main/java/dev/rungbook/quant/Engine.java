@@ -8,6 +8,7 @@ import dev.rungbook.internal.TensorAccess;
 import dev.rungbook.progress.Progress;
 import dev.rungbook.range.Range;
 import dev.rungbook.range.RangeContext;
+import dev.rungbook.round.ErrorFeedbackRounding;
 import dev.rungbook.round.ElementRounding;
 import dev.rungbook.round.GridAssignment;
 import dev.rungbook.round.LayerRounding;
@@ -435,7 +436,11 @@ final class Engine {
         }
         GridAssignment grid = GridAssignment.of(shape, seg.axis, seg.groupSize, q.qmin(), q.qmax(), scales, zps);
         LayerRounding rule = (LayerRounding) q.rounding;
-        int[] c = rule.codes(t, grid, progress);
+        // Error feedback refits group scales from the updated weights as it reaches each group, as published.
+        int[] c = rule instanceof ErrorFeedbackRounding
+                ? ((ErrorFeedbackRounding) rule).codes(t, grid, (v, from, to) -> linearParams(q.range.range(v, from,
+                        to, context(0, q.symmetric, q.bits, this::linearSse))), scales, zps, progress)
+                : rule.codes(t, grid, progress);
         if (c == null || c.length != n) {
             throw refuse("rounding '" + rule.label() + "' returned " + (c == null ? "no codes" : c.length + " codes")
                     + " for " + n + " elements");

@@ -41,6 +41,22 @@ public interface Rounding {
     }
 
     /**
+     * Adaptive rounding (AdaRound, Nagel et al. 2020) learned from {@code calibration} with the published defaults;
+     * see {@link AdaptiveRounding} for the settings.
+     */
+    static AdaptiveRounding adaptive(Calibration calibration) {
+        return AdaptiveRounding.of(calibration);
+    }
+
+    /**
+     * Error-feedback rounding (GPTQ, Frantar et al. 2023) from {@code calibration} with the published defaults;
+     * see {@link ErrorFeedbackRounding} for the settings.
+     */
+    static ErrorFeedbackRounding errorFeedback(Calibration calibration) {
+        return ErrorFeedbackRounding.of(calibration);
+    }
+
+    /**
      * Stochastic rounding: {@code x} becomes {@code floor(x) + 1} with probability {@code x - floor(x)}, else
      * {@code floor(x)}, so that the expected code equals {@code x} (unbiased).
      *

@@ -204,8 +204,8 @@ class LearnedRoundingTest {
         List<RoundingRun> runs = new ArrayList<>();
         for (Quantizer base : List.of(Quantizer.linear(4).perChannel(0), Quantizer.linear(3).perGroup(1, 8),
                 Quantizer.linear(4).asymmetric().perChannel(0))) {
-            for (LayerRounding rule : List.of(ErrorFeedbackRounding.of(cal).onFinish(runs::add),
-                    AdaptiveRounding.of(cal).iterations(600).learningRate(1e-2).onFinish(runs::add))) {
+            for (LayerRounding rule : List.of(Rounding.errorFeedback(cal).onFinish(runs::add),
+                    Rounding.adaptive(cal).iterations(600).learningRate(1e-2).onFinish(runs::add))) {
                 Quantized q = base.rounding(rule).apply(wt);
                 Quantized nearQ = base.apply(wt);
                 float[] deq = q.dequantized().toFloatArray();
@@ -221,8 +221,14 @@ class LearnedRoundingTest {
                 double e = outputError(w, deqD, rows, cols, x, n, null, false);
                 double en = outputError(w, nqD, rows, cols, x, n, null, false);
                 assertTrue(e < en, base.label() + " with " + rule.label() + ": " + e + " vs nearest " + en);
-                // Same scales as nearest: the rule only changed the up/down choices.
-                assertArrayEquals(nearQ.scales().toFloatArray(), q.scales().toFloatArray());
+                if (rule instanceof ErrorFeedbackRounding && base.granularity().toString().contains("group")) {
+                    // Error feedback refits each group's scale from the updated weights when it reaches the group,
+                    // as published; the first group still sees the original weights.
+                    assertEquals(nearQ.scales().getFlat(0), q.scales().getFlat(0));
+                } else {
+                    // Same scales as nearest: the rule only changed the up/down choices.
+                    assertArrayEquals(nearQ.scales().toFloatArray(), q.scales().toFloatArray());
+                }
             }
         }
         assertEquals(6, runs.size());
