@@ -207,7 +207,9 @@ public final class HtmlReport {
     private static String emphasis(String escaped) {
         return escaped.replaceAll("\\*\\*(.+?)\\*\\*", "<strong>$1</strong>")
                 .replaceAll("(?<![\\w*])\\*(?!\\s)(.+?)(?<!\\s)\\*(?![\\w*])", "<em>$1</em>")
-                .replaceAll("\\[([^\\]]+)\\]\\(([^)\\s]+)\\)", "<a href=\"$2\">$1</a>");
+                // Links only to web addresses, anchors and relative paths (no javascript: or data: URLs).
+                .replaceAll("\\[([^\\]]+)\\]\\(((?:https?://|#|\\.{0,2}/|[\\w-]+\\.)[^)\\s]*)\\)",
+                        "<a href=\"$2\">$1</a>");
     }
 
     /** HTML-escapes text. */
