@@ -18,15 +18,58 @@ import picocli.CommandLine.Option;
 
 /** {@code rungbook demo}: opens every sample checkpoint and prints a summary of each tensor. */
 @Command(name = "demo", mixinStandardHelpOptions = true,
-        description = "Run the demo on the embedded sample checkpoints: inspect every sample tensor.")
+        description = {"Run the demo on the embedded sample checkpoints: inspect every sample tensor, then execute",
+            "notebooks 01 and 02 headless (embedded runner, no Jupyter needed) and write HTML reports.",
+            "Run it from the repository root: the notebooks read sample-tensors/ from there."})
 final class DemoCommand implements Callable<Integer> {
     @Option(names = "--samples", description = "Folder of sample checkpoints (default: ${DEFAULT-VALUE}).",
             defaultValue = "sample-tensors")
     Path samples;
 
+    @Option(names = "--notebooks", description = "Folder of the notebooks (default: ${DEFAULT-VALUE}).",
+            defaultValue = "notebooks")
+    Path notebooks;
+
+    @Option(names = "--out", paramLabel = "DIR",
+            description = "Folder for the executed notebooks and HTML reports (default: ${DEFAULT-VALUE}).",
+            defaultValue = "target/demo")
+    Path out;
+
+    @Option(names = "--no-notebooks", description = "Only inspect the sample tensors.")
+    boolean noNotebooks;
+
+    /** The notebooks the demo executes. */
+    static final List<String> DEMO_NOTEBOOKS = List.of("01-first-look.ipynb", "02-granularity-and-range.ipynb");
+
     @Override
-    public Integer call() throws IOException {
-        return run(samples, System.out);
+    public Integer call() throws Exception {
+        int code = run(samples, System.out);
+        if (code != 0 || noNotebooks) {
+            return code;
+        }
+        return runNotebooks(notebooks, out, System.out, System.err);
+    }
+
+    /** Executes the demo notebooks of {@code folder}, writing notebooks and reports to {@code outDir}. */
+    static int runNotebooks(Path folder, Path outDir, PrintStream out, PrintStream err) throws Exception {
+        List<Path> files = DEMO_NOTEBOOKS.stream().map(folder::resolve).collect(Collectors.toList());
+        for (Path f : files) {
+            if (!Files.isRegularFile(f)) {
+                err.println("rungbook demo: no notebook at " + f.toAbsolutePath() + " (run from the repository root)");
+                return 1;
+            }
+        }
+        out.println();
+        out.println("Executing " + files.size() + " notebooks headless with the embedded runner ...");
+        int code = RunCommand.run(files, outDir, true, false, out, err);
+        out.println();
+        out.println("HTML reports (open in a browser):");
+        for (Path f : files) {
+            String n = f.getFileName().toString();
+            out.println("  " + outDir.resolve(n.substring(0, n.length() - ".ipynb".length()) + ".html").toAbsolutePath()
+                    .normalize());
+        }
+        return code;
     }
 
     static int run(Path folder, PrintStream out) throws IOException {

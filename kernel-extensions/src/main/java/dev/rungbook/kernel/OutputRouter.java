@@ -12,6 +12,7 @@ import java.nio.charset.StandardCharsets;
  * original stream (the kernel's log).
  */
 final class OutputRouter extends OutputStream {
+    private static boolean installed;
     private final OutputSink.Stream stream;
     private final PrintStream fallback;
 
@@ -20,8 +21,12 @@ final class OutputRouter extends OutputStream {
         this.fallback = fallback;
     }
 
-    /** Installs routers as {@code System.out} and {@code System.err}. */
-    static void install() {
+    /** Installs routers as {@code System.out} and {@code System.err} (once per JVM). */
+    static synchronized void install() {
+        if (installed) {
+            return;
+        }
+        installed = true;
         PrintStream out = System.out;
         PrintStream err = System.err;
         System.setOut(new PrintStream(new OutputRouter(OutputSink.Stream.STDOUT, out), true, StandardCharsets.UTF_8));

@@ -226,13 +226,7 @@ public final class RungbookKernel extends BaseKernel {
     }
 
     private static List<String> compileTraceback(CellResult.CompileFailure c) {
-        List<String> lines = new ArrayList<>();
-        for (CellResult.Problem p : c.problems()) {
-            lines.add("line " + p.line() + ", column " + p.column() + ": " + p.message());
-            lines.add("    " + p.sourceLine());
-            lines.add("    " + " ".repeat(Math.max(0, p.column() - 1)) + "^");
-        }
-        return lines;
+        return CellSession.compileTraceback(c);
     }
 
     private static CellResult kernelFailure(Throwable e) {
