@@ -81,7 +81,7 @@ public final class SampleGenerator {
     /**
      * Scales each output channel i of fc1 (weight row and bias) by a seeded log-normal factor s_i = exp(1.2 z) and
      * input column i of fc2 by 1/s_i. Because ReLU is positively homogeneous, the network computes the same function
-     * (up to float rounding); but fc1's per-channel ranges now differ by about two orders of magnitude, as they do in
+     * (up to float rounding); but fc1's per-channel ranges now differ by nearly three orders of magnitude, as they do in
      * real networks after BatchNorm folding, which is what per-tensor quantization and equalization are about.
      */
     static Network imbalanceChannels(Network net, long seed) {
