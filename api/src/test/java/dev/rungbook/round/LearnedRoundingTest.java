@@ -208,16 +208,8 @@ class LearnedRoundingTest {
                     Rounding.adaptive(cal).iterations(600).learningRate(1e-2).onFinish(runs::add))) {
                 Quantized q = base.rounding(rule).apply(wt);
                 Quantized nearQ = base.apply(wt);
-                float[] deq = q.dequantized().toFloatArray();
-                double[] deqD = new double[deq.length];
-                for (int i = 0; i < deq.length; i++) {
-                    deqD[i] = deq[i];
-                }
-                float[] nq = nearQ.dequantized().toFloatArray();
-                double[] nqD = new double[nq.length];
-                for (int i = 0; i < nq.length; i++) {
-                    nqD[i] = nq[i];
-                }
+                double[] deqD = toDouble(q.dequantized().toFloatArray());
+                double[] nqD = toDouble(nearQ.dequantized().toFloatArray());
                 double e = outputError(w, deqD, rows, cols, x, n, null, false);
                 double en = outputError(w, nqD, rows, cols, x, n, null, false);
                 assertTrue(e < en, base.label() + " with " + rule.label() + ": " + e + " vs nearest " + en);
@@ -253,5 +245,13 @@ class LearnedRoundingTest {
         assertEquals("adaptive(iterations=10000, batch=32, lambda=0.01, beta=20->2, warmup=0.2, lr=0.001, seed=0)",
                 r.label());
         assertEquals(r, AdaptiveRounding.of(Calibration.of(Tensor.of(new float[] {1, 2}, 1, 2))));
+    }
+
+    private static double[] toDouble(float[] v) {
+        double[] d = new double[v.length];
+        for (int i = 0; i < v.length; i++) {
+            d[i] = v[i];
+        }
+        return d;
     }
 }
