@@ -9,7 +9,7 @@ import java.util.Arrays;
  * A fully connected layer {@code y = x W^T + b} with weight shaped {@code [out, in]} (the usual checkpoint layout) and
  * bias shaped {@code [out]}.
  */
-public final class Linear implements Layer {
+public final class Linear implements WeightedLayer {
     private final String name;
     private final Tensor weight;
     private final Tensor bias;
@@ -40,11 +40,13 @@ public final class Linear implements Layer {
     }
 
     /** The weight, shaped [out, in]. */
+    @Override
     public Tensor weight() {
         return weight;
     }
 
     /** The bias, shaped [out]. */
+    @Override
     public Tensor bias() {
         return bias;
     }
@@ -60,6 +62,7 @@ public final class Linear implements Layer {
     }
 
     /** The same layer with another weight of the same shape (for example a dequantized one). */
+    @Override
     public Linear withWeight(Tensor newWeight) {
         if (!Arrays.equals(newWeight.shape(), weight.shape())) {
             throw new IllegalArgumentException(name + ": new weight shape " + Arrays.toString(newWeight.shape())
@@ -69,6 +72,7 @@ public final class Linear implements Layer {
     }
 
     /** The same layer with another bias of the same shape. */
+    @Override
     public Linear withBias(Tensor newBias) {
         return new Linear(name, weight, newBias);
     }

@@ -80,10 +80,21 @@ public final class Network {
         return out;
     }
 
+    /** The layers with weights (linear and convolution layers) in order. */
+    public List<WeightedLayer> weightedLayers() {
+        List<WeightedLayer> out = new ArrayList<>();
+        for (Layer l : layers) {
+            if (l instanceof WeightedLayer) {
+                out.add((WeightedLayer) l);
+            }
+        }
+        return out;
+    }
+
     /** The parameters as checkpoint-style tensors ({@code NAME.weight}, {@code NAME.bias}), in layer order. */
     public Map<String, Tensor> parameters() {
         Map<String, Tensor> out = new LinkedHashMap<>();
-        for (Linear l : linearLayers()) {
+        for (WeightedLayer l : weightedLayers()) {
             out.put(l.name() + ".weight", l.weight().withName(l.name() + ".weight"));
             out.put(l.name() + ".bias", l.bias().withName(l.name() + ".bias"));
         }
@@ -95,6 +106,15 @@ public final class Network {
         List<Layer> out = new ArrayList<>();
         for (Layer l : layers) {
             out.add(l instanceof Linear ? f.apply((Linear) l) : l);
+        }
+        return new Network(out);
+    }
+
+    /** A network with every weighted layer (linear or convolution) replaced by {@code f(layer)}. */
+    public Network mapWeighted(UnaryOperator<WeightedLayer> f) {
+        List<Layer> out = new ArrayList<>();
+        for (Layer l : layers) {
+            out.add(l instanceof WeightedLayer ? f.apply((WeightedLayer) l) : l);
         }
         return new Network(out);
     }
