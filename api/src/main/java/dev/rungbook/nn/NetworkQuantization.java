@@ -41,20 +41,59 @@ import tech.tablesaw.api.Table;
  * (a learned rounding receives the layer's inputs as the quantized network produces them, its bias and its following
  * ReLU), the layer and the non-weighted layers after it run on the quantized activations, and the output range is
  * measured on that result with the layer's range rule and fixed. Ranges thus cover the values the quantized network
- * actually produces. Range rules see the outputs of all calibration samples stacked along axis 0, in order.
+ * actually produces. Range rules see the outputs of all calibration samples stacked along axis 0, in order. Biases
+ * are rounded to the accumulator grid where weights and inputs are on integer grids ({@link #integerBias(boolean)}).
  */
 public final class NetworkQuantization {
     private final Network network;
     private final Map<String, LayerQuantization> layers;
     private final Quantizer input;
     private final RangeRule inputRange;
+    private final boolean integerBias;
 
     private NetworkQuantization(Network network, Map<String, LayerQuantization> layers, Quantizer input,
-            RangeRule inputRange) {
+            RangeRule inputRange, boolean integerBias) {
         this.network = network;
         this.layers = Collections.unmodifiableMap(new LinkedHashMap<>(layers));
         this.input = input;
         this.inputRange = inputRange;
+        this.integerBias = integerBias;
+    }
+
+    /**
+     * Whether biases are rounded to the accumulator grid (default on): where a layer's weight is on an integer grid
+     * (per tensor or per output channel) and its input activation is quantized on an integer grid, the bias of
+     * output channel {@code c} becomes {@code S_w,c S_x round(b_c / (S_w,c S_x))}, the int32 bias an integer-only
+     * device stores. Elsewhere the bias stays float.
+     */
+    public NetworkQuantization integerBias(boolean on) {
+        return new NetworkQuantization(network, layers, input, inputRange, on);
+    }
+
+    /** Whether biases are rounded to the accumulator grid (see {@link #integerBias(boolean)}). */
+    public boolean integerBias() {
+        return integerBias;
+    }
+
+    /** True for linear integer grids (any width, symmetric or not, signed or not) per tensor or per channel 0. */
+    static boolean isIntegerGrid(Quantizer q) {
+        Quantizer n;
+        try {
+            n = q.range(RangeRule.minMax()).rounding(Rounding.nearest());
+        } catch (IllegalArgumentException e) {
+            return false; // grids without a range rule or rounding (binary, ternary, codebook, MX) are not integer
+        }
+        for (int b = 2; b <= 16; b++) {
+            Quantizer base = Quantizer.linear(b);
+            for (Quantizer v : new Quantizer[] {base, base.asymmetric(), base.unsigned(), base.asymmetric().unsigned()}) {
+                for (Quantizer g : new Quantizer[] {v, v.narrowRange()}) {
+                    if (n.equals(g) || n.equals(g.perTensor())) {
+                        return true;
+                    }
+                }
+            }
+        }
+        return false;
     }
 
     /**
@@ -75,13 +114,13 @@ public final class NetworkQuantization {
             throw new IllegalArgumentException("network has no weighted layer to quantize: " + network);
         }
         LayerQuantization d = LayerQuantization.standard();
-        return new NetworkQuantization(network, m, d.activations().orElseThrow(), d.activationRange());
+        return new NetworkQuantization(network, m, d.activations().orElseThrow(), d.activationRange(), true);
     }
 
     private NetworkQuantization mapAll(UnaryOperator<LayerQuantization> f) {
         Map<String, LayerQuantization> m = new LinkedHashMap<>();
         layers.forEach((k, v) -> m.put(k, f.apply(v)));
-        return new NetworkQuantization(network, m, input, inputRange);
+        return new NetworkQuantization(network, m, input, inputRange, integerBias);
     }
 
     /** Every weighted layer's weights with {@code q}. */
@@ -109,31 +148,31 @@ public final class NetworkQuantization {
         LayerQuantization.checkActivationQuantizer(Objects.requireNonNull(q, "activation quantizer"),
                 "activation quantizer");
         NetworkQuantization n = mapAll(l -> l.activations(q));
-        return new NetworkQuantization(network, n.layers, q, inputRange);
+        return new NetworkQuantization(network, n.layers, q, inputRange, integerBias);
     }
 
     /** Every output and the input in float: weight-only quantization. */
     public NetworkQuantization floatActivations() {
         NetworkQuantization n = mapAll(LayerQuantization::floatActivations);
-        return new NetworkQuantization(network, n.layers, null, inputRange);
+        return new NetworkQuantization(network, n.layers, null, inputRange, integerBias);
     }
 
     /** The range rule of every output activation and of the input (see {@link LayerQuantization#activationRange}). */
     public NetworkQuantization activationRange(RangeRule rule) {
         Objects.requireNonNull(rule, "range");
         NetworkQuantization n = mapAll(l -> l.activationRange(rule));
-        return new NetworkQuantization(network, n.layers, input, rule);
+        return new NetworkQuantization(network, n.layers, input, rule, integerBias);
     }
 
     /** The input's quantizer (one scale per tensor) and range rule. */
     public NetworkQuantization input(Quantizer q, RangeRule rule) {
         LayerQuantization.checkActivationQuantizer(Objects.requireNonNull(q, "input quantizer"), "input quantizer");
-        return new NetworkQuantization(network, layers, q, Objects.requireNonNull(rule, "range"));
+        return new NetworkQuantization(network, layers, q, Objects.requireNonNull(rule, "range"), integerBias);
     }
 
     /** The input in float. */
     public NetworkQuantization floatInput() {
-        return new NetworkQuantization(network, layers, null, inputRange);
+        return new NetworkQuantization(network, layers, null, inputRange, integerBias);
     }
 
     /**
@@ -146,7 +185,7 @@ public final class NetworkQuantization {
         LayerQuantization current = layerOf(name);
         Map<String, LayerQuantization> m = new LinkedHashMap<>(layers);
         m.put(name, Objects.requireNonNull(f.apply(current), "layer set-up for " + name));
-        return new NetworkQuantization(network, m, input, inputRange);
+        return new NetworkQuantization(network, m, input, inputRange, integerBias);
     }
 
     /**
@@ -162,7 +201,7 @@ public final class NetworkQuantization {
             LayerQuantization current = layerOf(e.getKey());
             m.put(e.getKey(), current.weights(Objects.requireNonNull(e.getValue(), "quantizer for " + e.getKey())));
         }
-        return new NetworkQuantization(network, m, input, inputRange);
+        return new NetworkQuantization(network, m, input, inputRange, integerBias);
     }
 
     private LayerQuantization layerOf(String name) {
@@ -245,12 +284,12 @@ public final class NetworkQuantization {
         }
         NetworkQuantization n = (NetworkQuantization) o;
         return network.equals(n.network) && layers.equals(n.layers) && Objects.equals(input, n.input)
-                && inputRange.equals(n.inputRange);
+                && inputRange.equals(n.inputRange) && integerBias == n.integerBias;
     }
 
     @Override
     public int hashCode() {
-        return Objects.hash(network, layers, input, inputRange);
+        return Objects.hash(network, layers, input, inputRange, integerBias);
     }
 
     @Override

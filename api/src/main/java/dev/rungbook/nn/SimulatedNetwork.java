@@ -1,5 +1,6 @@
 package dev.rungbook.nn;
 
+import dev.rungbook.internal.TensorAccess;
 import dev.rungbook.metrics.ErrorReport;
 import dev.rungbook.progress.Progress;
 import dev.rungbook.quant.Quantized;
@@ -139,6 +140,11 @@ public final class SimulatedNetwork {
                 }
                 qw = wq.apply(ref.weight().withName(ref.name() + ".weight"), progress);
                 layer = ref.withWeight(qw.dequantized());
+                CalibratedActivation feeding = stages.isEmpty() ? in : stages.get(stages.size() - 1).output;
+                if (setup.integerBias() && feeding != null && NetworkQuantization.isIntegerGrid(qw.spec())
+                        && NetworkQuantization.isIntegerGrid(feeding.quantizer())) {
+                    layer = layer.withBias(accumulatorBias(ref.bias(), qw, feeding.scale()));
+                }
             }
             Tensor y = layer.forward(x);
             for (Layer l : tail) {
@@ -155,6 +161,18 @@ public final class SimulatedNetwork {
         }
         progress.finish(task);
         return new SimulatedNetwork(setup, in, prefix, stages);
+    }
+
+    /** {@code S_w,c S_x round(b_c / (S_w,c S_x))} per output channel (one weight scale per channel or per tensor). */
+    private static Tensor accumulatorBias(Tensor bias, Quantized weights, double inputScale) {
+        float[] b = TensorAccess.data(bias);
+        float[] sw = TensorAccess.data(weights.scales());
+        float[] out = new float[b.length];
+        for (int c = 0; c < b.length; c++) {
+            double acc = (double) (sw.length == 1 ? sw[0] : sw[c]) * inputScale;
+            out[c] = (float) (acc * Math.rint(b[c] / acc));
+        }
+        return TensorAccess.wrap(out, bias.shape(), bias.dtype(), bias.name());
     }
 
     /** The calibration inputs of {@code layer} for a learned rounding: its inputs, bias and a following ReLU. */

@@ -75,6 +75,7 @@ class SimulatedNetworkTest {
         float[] v = fakeQuantUint8(TensorAccess.data(x), in.scale(), in.zeroPoint());
         int nc = calibration.dim(0);
         int nx = x.dim(0);
+        double sx = in.scale();
         List<Linear> ls = sim.reference().linearLayers();
         for (int k = 0; k < ls.size(); k++) {
             Linear l = ls.get(k);
@@ -87,8 +88,14 @@ class SimulatedNetworkTest {
                 }
                 assertEquals(amax / 127, scales[r], 1e-6 * amax / 127, l.name() + " row " + r);
             }
+            // int32 bias on the accumulator grid: S_w,c S_x round(b_c / (S_w,c S_x))
+            float[] b = l.bias().toFloatArray();
+            for (int r = 0; r < b.length; r++) {
+                double acc = (double) scales[r] * sx;
+                b[r] = (float) (acc * Math.rint(b[r] / acc));
+            }
             Linear q = l.withWeight(Tensor.of(perRow(w, l.outFeatures(), l.inFeatures(), scales), l.outFeatures(),
-                    l.inFeatures()));
+                    l.inFeatures())).withBias(Tensor.of(b, b.length));
             float[] yc = TensorAccess.data(q.forward(Tensor.of(c, nc, l.inFeatures()))).clone();
             float[] yx = TensorAccess.data(q.forward(Tensor.of(v, nx, l.inFeatures()))).clone();
             if (k + 1 < ls.size()) {
@@ -103,6 +110,7 @@ class SimulatedNetworkTest {
             assertMinMaxGrid(out, yc);
             c = fakeQuantUint8(yc, out.scale(), out.zeroPoint());
             v = fakeQuantUint8(yx, out.scale(), out.zeroPoint());
+            sx = out.scale();
         }
         return v;
     }
@@ -110,7 +118,8 @@ class SimulatedNetworkTest {
     @Test
     void defaultSetUpMatchesAHandWrittenFakeQuantPass() {
         // Source: the uniform affine quantization formulas (scale (hi - lo) / 255, zero point round(-lo / s), codes
-        // clamp(round(x / s) + z, 0, 255); symmetric weights max|w| / 127 per output channel), written out by hand.
+        // clamp(round(x / s) + z, 0, 255); symmetric weights max|w| / 127 per output channel; the int32 bias of the
+        // integer-only scheme, Jacob et al. 2018), written out by hand.
         Network net = Trainer.initialMlp(41, 16, 32, 24, 4);
         Tensor cal = EqualizationTest.inputs(42, 256, 16);
         Tensor x = EqualizationTest.inputs(43, 300, 16);
