@@ -87,14 +87,7 @@ public final class Linear implements WeightedLayer {
         }
         int n = batch.dim(0);
         float[] y = new float[n * out];
-        Dense.matmulTransposedB(TensorAccess.data(batch), TensorAccess.data(weight), y, n, in, out);
-        float[] b = TensorAccess.data(bias);
-        for (int i = 0; i < n; i++) {
-            int row = i * out;
-            for (int o = 0; o < out; o++) {
-                y[row + o] += b[o];
-            }
-        }
+        Dense.affine(TensorAccess.data(batch), TensorAccess.data(weight), TensorAccess.data(bias), y, n, in, out);
         return TensorAccess.wrap(y, new int[] {n, out}, DType.F32, null);
     }
 
