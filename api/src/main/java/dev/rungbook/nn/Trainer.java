@@ -9,8 +9,9 @@ import java.util.List;
 import java.util.Random;
 
 /**
- * Trains a multilayer perceptron (linear layers with ReLU between them) as a classifier with softmax cross-entropy
- * and Adam (Kingma &amp; Ba 2015: beta1 0.9, beta2 0.999, epsilon 1e-8) on seeded, shuffled mini-batches.
+ * Trains a network of {@link Linear}, {@link Conv2d}, {@link BatchNorm} (batch statistics, running averages updated),
+ * {@link Relu}, {@link Relu6}, {@link Identity}, {@link Flatten} and {@link Pool2d} layers as a classifier with softmax
+ * cross-entropy and Adam (Kingma &amp; Ba 2015: beta1 0.9, beta2 0.999, epsilon 1e-8) on seeded, shuffled mini-batches.
  *
  * <p>An immutable spec: each step returns a new trainer; {@link #train} does the work, reports each mini-batch's
  * loss to the {@link Progress} listener and stops with
@@ -102,32 +103,22 @@ public final class Trainer {
 
     /** Trains a copy of {@code start} on {@code data} and returns it; {@code start} is not modified. */
     public Network train(Network start, Dataset data) {
-        Mlp mlp = Mlp.of(start);
-        int depth = mlp.depth();
-        if (data.inputs().rank() != 2 || data.inputs().dim(1) != mlp.ins[0]) {
-            throw new IllegalArgumentException("training inputs shaped "
-                    + java.util.Arrays.toString(data.inputs().shape()) + " do not fit the first layer's "
-                    + mlp.ins[0] + " inputs");
+        List<Node> nodes = new ArrayList<>();
+        for (Layer l : start.layers()) {
+            nodes.add(Node.of(l, w -> null));
         }
-        if (data.classCount() > mlp.outs[depth - 1]) {
-            throw new IllegalArgumentException("labels go up to " + (data.classCount() - 1)
-                    + " but the network has " + mlp.outs[depth - 1] + " outputs");
+        int features = checkFits(start, data);
+        List<Node.Param> params = new ArrayList<>();
+        for (Node node : nodes) {
+            params.addAll(node.params());
         }
-        float[][] w = mlp.weights();
-        float[][] b = mlp.biases();
-        float[][] gw = new float[depth][];
-        float[][] gb = new float[depth][];
-        Adam[] aw = new Adam[depth];
-        Adam[] ab = new Adam[depth];
-        for (int l = 0; l < depth; l++) {
-            gw[l] = new float[w[l].length];
-            gb[l] = new float[b[l].length];
-            aw[l] = new Adam(w[l].length);
-            ab[l] = new Adam(b[l].length);
+        Adam[] adam = new Adam[params.size()];
+        for (int i = 0; i < adam.length; i++) {
+            adam[i] = new Adam(params.get(i).value.length);
         }
         int n = data.size();
-        int features = mlp.ins[0];
         float[] x = TensorAccess.data(data.inputs());
+        int[] inShape = data.inputs().shape();
         int[] y = data.labels();
         Random r = new Random(seed);
         int[] order = new int[n];
@@ -136,7 +127,7 @@ public final class Trainer {
         }
         long steps = (long) epochs * ((n + batchSize - 1) / batchSize);
         long step = 0;
-        String task = "training " + depth + "-layer MLP";
+        String task = "training " + start.weightedLayers().size() + "-layer network";
         try {
             for (int epoch = 0; epoch < epochs; epoch++) {
                 for (int i = n - 1; i > 0; i--) {
@@ -154,11 +145,13 @@ public final class Trainer {
                         System.arraycopy(x, order[first + q] * features, bx, q * features, features);
                         by[q] = y[order[first + q]];
                     }
-                    double loss = mlp.lossAndGradients(w, b, bx, by, gw, gb);
+                    int[] shape = inShape.clone();
+                    shape[0] = m;
+                    double loss = lossAndGradients(nodes, params, new Node.Act(bx, shape), by);
                     step++;
-                    for (int l = 0; l < depth; l++) {
-                        aw[l].step(w[l], gw[l], learningRate, weightDecay, step);
-                        ab[l].step(b[l], gb[l], learningRate, 0, step);
+                    for (int i = 0; i < adam.length; i++) {
+                        Node.Param p = params.get(i);
+                        adam[i].step(p.value, p.grad, learningRate, p.decay ? weightDecay : 0, step);
                     }
                     progress.update(task, step, steps, loss);
                 }
@@ -166,7 +159,76 @@ public final class Trainer {
         } finally {
             progress.finish(task);
         }
-        return mlp.network(start, w, b);
+        List<Layer> out = new ArrayList<>();
+        for (Node node : nodes) {
+            out.add(node.layer());
+        }
+        return Network.of(out);
+    }
+
+    /** The number of input values per sample, after checking that the network takes the data and has the classes. */
+    private static int checkFits(Network net, Dataset data) {
+        Tensor in = data.inputs();
+        int[] one = in.shape().clone();
+        one[0] = Math.min(1, one[0]);
+        int features = one[0] == 0 ? 0 : in.size() / in.dim(0);
+        Tensor z;
+        try {
+            z = net.forward(Tensor.of(java.util.Arrays.copyOf(TensorAccess.data(in), features), one));
+        } catch (IllegalArgumentException e) {
+            throw new IllegalArgumentException("training inputs shaped " + java.util.Arrays.toString(in.shape())
+                    + " do not fit the network: " + e.getMessage(), e);
+        }
+        if (z.rank() != 2) {
+            throw new IllegalArgumentException("the network's output must be logits [N, classes]; got shape "
+                    + java.util.Arrays.toString(z.shape()));
+        }
+        if (data.classCount() > z.dim(1)) {
+            throw new IllegalArgumentException("labels go up to " + (data.classCount() - 1)
+                    + " but the network has " + z.dim(1) + " outputs");
+        }
+        return features;
+    }
+
+    /**
+     * The mean softmax cross-entropy of a batch through {@code nodes} in training mode, with every parameter's
+     * gradient written into its {@link Node.Param#grad} (overwritten).
+     */
+    static double lossAndGradients(List<Node> nodes, List<Node.Param> params, Node.Act x, int[] labels) {
+        for (Node.Param p : params) {
+            p.zeroGrad();
+        }
+        Node.Act a = x;
+        for (Node node : nodes) {
+            a = node.forward(a, true);
+        }
+        int m = labels.length;
+        int classes = a.shape()[1];
+        float[] z = a.v();
+        float[] g = new float[m * classes];
+        double loss = 0;
+        for (int s = 0; s < m; s++) {
+            double max = Double.NEGATIVE_INFINITY;
+            for (int c = 0; c < classes; c++) {
+                max = Math.max(max, z[s * classes + c]);
+            }
+            double sum = 0;
+            for (int c = 0; c < classes; c++) {
+                sum += Math.exp(z[s * classes + c] - max);
+            }
+            int label = labels[s];
+            loss -= z[s * classes + label] - max - Math.log(sum);
+            // d(mean loss)/d(logit) = (softmax - onehot) / m
+            for (int c = 0; c < classes; c++) {
+                double p = Math.exp(z[s * classes + c] - max) / sum;
+                g[s * classes + c] = (float) ((p - (c == label ? 1 : 0)) / m);
+            }
+        }
+        Node.Act grad = new Node.Act(g, a.shape());
+        for (int i = nodes.size() - 1; i >= 0; i--) {
+            grad = nodes.get(i).backward(grad, i > 0);
+        }
+        return loss / m;
     }
 
     /** Adam state for one parameter array. */

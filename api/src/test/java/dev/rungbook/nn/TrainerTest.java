@@ -6,6 +6,8 @@ import static org.junit.jupiter.api.Assertions.assertTrue;
 
 import dev.rungbook.progress.OperationInterruptedException;
 import dev.rungbook.tensor.Tensor;
+import java.util.ArrayList;
+import java.util.List;
 import java.util.Random;
 import org.junit.jupiter.api.Test;
 
@@ -40,47 +42,37 @@ class TrainerTest {
             xv[i] = (float) r.nextGaussian();
         }
         int[] y = {0, 1, 2, 1, 0, 2};
-        Mlp mlp = Mlp.of(net);
-        float[][] w = mlp.weights();
-        float[][] b = mlp.biases();
-        float[][] gw = {new float[w[0].length], new float[w[1].length], new float[w[2].length]};
-        float[][] gb = {new float[b[0].length], new float[b[1].length], new float[b[2].length]};
-        double l0 = mlp.lossAndGradients(w, b, xv, y, gw, gb);
+        List<Node> nodes = new ArrayList<>();
+        for (Layer l : net.layers()) {
+            nodes.add(Node.of(l, q -> null));
+        }
+        List<Node.Param> params = new ArrayList<>();
+        nodes.forEach(n -> params.addAll(n.params()));
+        double l0 = Trainer.lossAndGradients(nodes, params, new Node.Act(xv, new int[] {m, 5}), y);
         Tensor x = Tensor.of(xv, m, 5);
         assertEquals(loss(net, x, y), l0, 1e-5);
         double h = 1e-2;
         int checked = 0;
-        for (int l = 0; l < 3; l++) {
-            for (int i = 0; i < w[l].length; i += 3) {
-                float keep = w[l][i];
-                w[l][i] = (float) (keep + h);
-                double up = loss(mlp.network(net, copy(w), copy(b)), x, y);
-                w[l][i] = (float) (keep - h);
-                double down = loss(mlp.network(net, copy(w), copy(b)), x, y);
-                w[l][i] = keep;
+        for (Node.Param p : params) {
+            for (int i = 0; i < p.value.length; i += p.name.endsWith(".weight") ? 3 : 1) {
+                float keep = p.value[i];
+                p.value[i] = (float) (keep + h);
+                double up = loss(network(nodes), x, y);
+                p.value[i] = (float) (keep - h);
+                double down = loss(network(nodes), x, y);
+                p.value[i] = keep;
                 double numeric = (up - down) / (2 * h);
-                assertEquals(numeric, gw[l][i], 2e-3 + 0.02 * Math.abs(numeric), "layer " + l + " weight " + i);
+                assertEquals(numeric, p.grad[i], 2e-3 + 0.02 * Math.abs(numeric), p.name + " " + i);
                 checked++;
-            }
-            for (int i = 0; i < b[l].length; i++) {
-                float keep = b[l][i];
-                b[l][i] = (float) (keep + h);
-                double up = loss(mlp.network(net, copy(w), copy(b)), x, y);
-                b[l][i] = (float) (keep - h);
-                double down = loss(mlp.network(net, copy(w), copy(b)), x, y);
-                b[l][i] = keep;
-                assertEquals((up - down) / (2 * h), gb[l][i], 2e-3, "layer " + l + " bias " + i);
             }
         }
         assertTrue(checked > 20);
     }
 
-    private static float[][] copy(float[][] a) {
-        float[][] c = new float[a.length][];
-        for (int i = 0; i < a.length; i++) {
-            c[i] = a[i].clone();
-        }
-        return c;
+    private static Network network(List<Node> nodes) {
+        List<Layer> layers = new ArrayList<>();
+        nodes.forEach(n -> layers.add(n.layer()));
+        return Network.of(layers);
     }
 
     @Test
