@@ -25,46 +25,6 @@ class LayersTest {
         return Tensor.of(Fixtures.gaussian(seed, n), shape);
     }
 
-    /**
-     * A direct convolution written from the definition, one output at a time, in double (a path independent of
-     * im2col and the matmul kernels).
-     */
-    static double[] naiveConv(float[] x, int[] xs, float[] w, int[] ws, float[] b, int stride, int pad) {
-        int n = xs[0];
-        int c = xs[1];
-        int h = xs[2];
-        int wd = xs[3];
-        int o = ws[0];
-        int kh = ws[2];
-        int kw = ws[3];
-        int oh = (h + 2 * pad - kh) / stride + 1;
-        int ow = (wd + 2 * pad - kw) / stride + 1;
-        double[] y = new double[n * o * oh * ow];
-        for (int s = 0; s < n; s++) {
-            for (int f = 0; f < o; f++) {
-                for (int i = 0; i < oh; i++) {
-                    for (int j = 0; j < ow; j++) {
-                        double acc = b[f];
-                        for (int ch = 0; ch < c; ch++) {
-                            for (int u = 0; u < kh; u++) {
-                                for (int v = 0; v < kw; v++) {
-                                    int r = i * stride - pad + u;
-                                    int q = j * stride - pad + v;
-                                    if (r >= 0 && r < h && q >= 0 && q < wd) {
-                                        acc += (double) w[((f * c + ch) * kh + u) * kw + v]
-                                                * x[((s * c + ch) * h + r) * wd + q];
-                                    }
-                                }
-                            }
-                        }
-                        y[((s * o + f) * oh + i) * ow + j] = acc;
-                    }
-                }
-            }
-        }
-        return y;
-    }
-
     @Test
     void convolutionReproducesAWorkedExample() {
         // Source: worked by hand. Input 1..9 as a 3x3 image, kernel [[1, 0], [0, -1]], bias 0.5: every output is
@@ -83,7 +43,7 @@ class LayersTest {
 
     @Test
     void convolutionMatchesADirectConvolution() {
-        // Source: the definition of 2-D cross-correlation, evaluated directly in double (naiveConv above).
+        // Source: the definition of 2-D cross-correlation, evaluated directly in double (Reference.conv).
         int[][] cases = {{2, 3, 9, 7, 4, 3, 3, 1, 1}, {3, 2, 8, 8, 5, 3, 2, 2, 0}, {1, 4, 6, 5, 2, 1, 1, 1, 0},
             {2, 1, 7, 9, 3, 5, 3, 3, 2}};
         for (int[] k : cases) {
@@ -91,8 +51,8 @@ class LayersTest {
             Tensor w = random(k[4] * 7 + k[5], k[4], k[1], k[5], k[6]);
             Tensor b = random(k[4], k[4]);
             Tensor y = new Conv2d("c", w, b, k[7], k[8]).forward(x);
-            double[] ref = naiveConv(x.toFloatArray(), x.shape(), w.toFloatArray(), w.shape(), b.toFloatArray(),
-                    k[7], k[8]);
+            double[] ref = Reference.conv(Reference.toDouble(x.toFloatArray()), x.shape(),
+                    Reference.toDouble(w.toFloatArray()), w.shape(), Reference.toDouble(b.toFloatArray()), k[7], k[8]).v();
             float[] got = y.toFloatArray();
             assertEquals(ref.length, got.length);
             for (int i = 0; i < ref.length; i++) {

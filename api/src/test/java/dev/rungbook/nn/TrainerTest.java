@@ -98,6 +98,40 @@ class TrainerTest {
     }
 
     @Test
+    void trainsAConvNetWithBatchNormAndIsDeterministic() {
+        // A bright 2x2 spot in the left or the right half of a noisy 8x8 image: the class is visible to a 3x3
+        // convolution and max pooling, so a trained conv net must exceed 95% accuracy (chance is 50%).
+        Random r = new Random(4);
+        int n = 400;
+        float[] xv = new float[n * 64];
+        int[] y = new int[n];
+        for (int s = 0; s < n; s++) {
+            y[s] = s % 2;
+            for (int k = 0; k < 64; k++) {
+                xv[s * 64 + k] = (float) (0.5 * r.nextGaussian());
+            }
+            int row = r.nextInt(7);
+            int col = (y[s] == 0 ? 0 : 4) + r.nextInt(3);
+            for (int u = 0; u < 2; u++) {
+                for (int v = 0; v < 2; v++) {
+                    xv[s * 64 + (row + u) * 8 + col + v] += 2f;
+                }
+            }
+        }
+        Dataset d = new Dataset(Tensor.of(xv, n, 1, 8, 8), y);
+        Network start = Network.of(Conv2d.initial("conv1", 1, 4, 3, 1, 1, 1), BatchNorm.initial("bn1", 4),
+                new Relu("relu1"), Pool2d.max("pool1", 2, 2), new Flatten("flatten"),
+                Trainer.initialMlp(2, 64, 2).layers().get(0));
+        Trainer t = Trainer.adam(1e-2).epochs(8).batchSize(32).seed(3);
+        Network a = t.train(start, d);
+        assertTrue(a.accuracy(d) > 0.95, "accuracy " + a.accuracy(d));
+        assertTrue(a.accuracy(d) > start.accuracy(d) + 0.2, "untrained " + start.accuracy(d));
+        BatchNorm bn = (BatchNorm) a.layers().get(1);
+        assertTrue(bn.mean().getFlat(0) != 0f && bn.variance().getFlat(0) != 1f, "running statistics updated");
+        assertEquals(a.parameters(), t.train(start, d).parameters());
+    }
+
+    @Test
     void stopsWhenInterrupted() {
         Dataset d = new Dataset(Tensor.of(new float[20], 10, 2), new int[10]);
         Thread.currentThread().interrupt();
