@@ -8,6 +8,10 @@ import java.util.List;
  * to the latent weight's gradient and adds the gradients of the transform's own parameters (learned scales).
  */
 interface WeightTransform {
+    /** Called once with the layer's copy of its weight before training; may rescale it and set initial scales. */
+    default void prepare(float[] latent) {
+    }
+
     /** The weight the forward pass uses, as a new array; {@code latent} is not modified. */
     float[] forward(float[] latent);
 

@@ -23,6 +23,9 @@ abstract class WeightedNode extends Node {
         this.weight = new Param(source.name() + ".weight", source.weight().toFloatArray(), true);
         this.bias = new Param(source.name() + ".bias", source.bias().toFloatArray(), false);
         this.transform = transform;
+        if (transform != null) {
+            transform.prepare(weight.value);
+        }
     }
 
     /** The forward pass with the given weight values. */
