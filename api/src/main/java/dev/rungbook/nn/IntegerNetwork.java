@@ -45,8 +45,8 @@ public final class IntegerNetwork {
         if (bits < 2 || bits > 8) {
             throw new IllegalArgumentException("integer network bits must be in [2, 8], got " + bits);
         }
-        Mlp mlp = Mlp.of(net);
         List<Linear> linears = net.linearLayers();
+        boolean[] reluAfter = reluAfter(net);
         int qmax = (1 << bits) - 1;
         double[] inRange = range(TensorAccess.data(calibration));
         double sx = scaleOf(inRange, qmax);
@@ -59,7 +59,7 @@ public final class IntegerNetwork {
         for (int l = 0; l < linears.size(); l++) {
             Linear lin = linears.get(l);
             act = lin.forward(act);
-            boolean relu = mlp.reluAfter[l];
+            boolean relu = reluAfter[l];
             float[] y = TensorAccess.data(act);
             if (relu) {
                 float[] r = new float[y.length];
@@ -104,6 +104,23 @@ public final class IntegerNetwork {
             zx = zy;
         }
         return new IntegerNetwork(out, inputScale, inputZp, bits);
+    }
+
+    /** Whether a ReLU follows each linear layer; the network must start with one and hold only linear and ReLU. */
+    private static boolean[] reluAfter(Network net) {
+        boolean[] relu = new boolean[net.linearLayers().size()];
+        int li = -1;
+        for (Layer l : net.layers()) {
+            if (l instanceof Linear) {
+                li++;
+            } else if (l instanceof Relu && li >= 0) {
+                relu[li] = true;
+            } else {
+                throw new IllegalArgumentException("the integer network handles linear and ReLU layers starting "
+                        + "with a linear layer; got " + l);
+            }
+        }
+        return relu;
     }
 
     private static double[] range(float[] v) {
