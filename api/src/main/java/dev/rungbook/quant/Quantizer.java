@@ -46,6 +46,10 @@ import java.util.Objects;
  * {@link #apply} with an {@link IllegalArgumentException} naming both the tensor and the spec.
  *
  * <p>Equality is by value; {@link #toString()} is the {@link #label()}.
+ *
+ * <h2>Text form</h2>
+ * {@link #parse(String)} reads a short spec text such as {@code "int4 per-group(1,128) mse"} and {@link #toText()}
+ * writes one; the grammar is in {@link SpecText}.
  */
 public final class Quantizer {
     /** The kind of grid. */
@@ -224,6 +228,16 @@ public final class Quantizer {
      */
     public static Quantizer ternary() {
         return of(Kind.TERNARY, 2, Granularity.perTensor(), null);
+    }
+
+    /**
+     * The spec a spec text describes, for example {@code Quantizer.parse("uint8 asym per-tensor p99.9")}; the
+     * grammar is in {@link SpecText}.
+     *
+     * @throws SpecSyntaxException naming the bad token and its column
+     */
+    public static Quantizer parse(String text) {
+        return SpecText.parse(text);
     }
 
     // ---------------------------------------------------------------- fluent steps
@@ -529,6 +543,15 @@ public final class Quantizer {
             b.append(' ').append(rounding.label());
         }
         return b.toString();
+    }
+
+    /**
+     * The canonical spec text ({@link SpecText#format}); {@code Quantizer.parse(q.toText()).equals(q)}.
+     *
+     * @throws IllegalArgumentException for a learned or custom rounding or a custom range rule (no text form)
+     */
+    public String toText() {
+        return SpecText.format(this);
     }
 
     @Override
