@@ -5,6 +5,7 @@ import dev.rungbook.nn.WeightedLayer;
 import dev.rungbook.quant.Quantized;
 import dev.rungbook.quant.Quantizer;
 import dev.rungbook.tensor.Tensor;
+import java.nio.file.Path;
 import java.util.Collections;
 import java.util.LinkedHashMap;
 import java.util.LinkedHashSet;
@@ -22,7 +23,11 @@ import java.util.Set;
  * Plan p = Plan.of(Map.of("fc1", Quantizer.linear(4), "fc2", Quantizer.linear(8)));
  * Network q = p.apply(net);                   // weights replaced by their dequantized values
  * Map<String, Tensor> t = p.apply(tensors);   // the same for checkpoint tensors NAME.weight
+ * p.write(Path.of("plan.json"));              // atomically; Plan.read(path) gives an equal plan
  * }</pre>
+ *
+ * <p>Plan files are small JSON documents of our own design (see {@link #toJson()}); specs are stored in their spec
+ * text form ({@link Quantizer#toText()}), so a teammate can read and edit them.
  */
 public final class Plan {
     private final Map<String, Quantizer> specs;
@@ -156,6 +161,75 @@ public final class Plan {
             out.put(e.getKey(), r == null ? e.getValue() : r.dequantized());
         }
         return Collections.unmodifiableMap(out);
+    }
+
+    // ------------------------------------------------------------------------------------------------ plan files
+
+    /**
+     * Reads a plan file (format in {@link #toJson()}).
+     *
+     * @throws PlanFormatException naming the file and the field for malformed JSON, a missing, unknown or mistyped
+     *     field, a duplicate layer, or a spec text that does not parse (with the parser's message naming the token)
+     * @throws java.io.UncheckedIOException if the file cannot be read
+     */
+    public static Plan read(Path file) {
+        return fromContents(PlanFile.read(file), file);
+    }
+
+    /**
+     * Parses plan file bytes; {@code source} names them in messages.
+     *
+     * @throws PlanFormatException as {@link #read}
+     */
+    public static Plan parse(byte[] json, Path source) {
+        return fromContents(PlanFile.parse(json, source), source);
+    }
+
+    private static Plan fromContents(PlanFile.Contents c, Path file) {
+        Map<String, Quantizer> specs = new LinkedHashMap<>();
+        for (int i = 0; i < c.layers().size(); i++) {
+            PlanFile.Entry e = c.layers().get(i);
+            try {
+                specs.put(e.layer(), Quantizer.parse(e.spec()));
+            } catch (IllegalArgumentException ex) {
+                throw new PlanFormatException(file, "layers[" + i + "].spec", "layer '" + e.layer() + "': "
+                        + ex.getMessage(), ex);
+            }
+        }
+        return new Plan(specs, c.info());
+    }
+
+    /**
+     * The plan file text, format version 1: a JSON object with {@code "rungbook_plan": 1}, {@code "layers"} (an array
+     * of {@code {"layer": NAME, "spec": SPEC TEXT}} in plan order, specs in {@link Quantizer#toText()} form) and,
+     * when there is any, {@code "info"} (an object of strings).
+     *
+     * @throws IllegalArgumentException if a spec has no text form (for example a learned rounding), naming the layer
+     */
+    public String toJson() {
+        return new String(PlanFile.format(contents()), java.nio.charset.StandardCharsets.UTF_8);
+    }
+
+    /**
+     * Writes {@link #toJson()} to {@code file} atomically.
+     *
+     * @throws IllegalArgumentException as {@link #toJson()}
+     * @throws java.io.UncheckedIOException if the file cannot be written
+     */
+    public void write(Path file) {
+        PlanFile.write(file, contents());
+    }
+
+    private PlanFile.Contents contents() {
+        List<PlanFile.Entry> entries = new java.util.ArrayList<>();
+        specs.forEach((layer, q) -> {
+            try {
+                entries.add(new PlanFile.Entry(layer, q.toText()));
+            } catch (IllegalArgumentException e) {
+                throw new IllegalArgumentException("plan: layer '" + layer + "': " + e.getMessage(), e);
+            }
+        });
+        return new PlanFile.Contents(entries, info);
     }
 
     @Override

@@ -222,7 +222,7 @@ final class PlanFile {
         r.beginObject();
         Map<String, String> out = new LinkedHashMap<>();
         while (r.hasNext()) {
-            String key = r.nextName();
+            String key = checkText(r.nextName(), file, "info");
             if (out.containsKey(key)) {
                 throw new PlanFormatException(file, "info." + key, "appears twice");
             }
@@ -234,7 +234,21 @@ final class PlanFile {
 
     private static String readString(JsonReader r, Path file, String field) throws IOException {
         expect(r, JsonToken.STRING, file, field, "a string");
-        return r.nextString();
+        return checkText(r.nextString(), file, field);
+    }
+
+    /** Refuses a string with an unpaired surrogate (a JSON escape of half a character pair). */
+    private static String checkText(String s, Path file, String field) {
+        for (int i = 0; i < s.length(); i++) {
+            char c = s.charAt(i);
+            if (Character.isHighSurrogate(c) && i + 1 < s.length() && Character.isLowSurrogate(s.charAt(i + 1))) {
+                i++;
+            } else if (Character.isSurrogate(c)) {
+                throw new PlanFormatException(file, field, String.format(java.util.Locale.ROOT, "unpaired "
+                        + "surrogate \\u%04x at character %d is not text", (int) c, i));
+            }
+        }
+        return s;
     }
 
     private static void expect(JsonReader r, JsonToken want, Path file, String field, String what)

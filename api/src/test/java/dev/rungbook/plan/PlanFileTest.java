@@ -90,6 +90,8 @@ class PlanFileTest {
         refused("{\"rungbook_plan\": 1, \"layers\": [{\"layer\": \"a\", \"spec\": \"int8\"}, "
                 + "{\"layer\": \"a\", \"spec\": \"int4\"}]}", "layers[1].layer", "planned twice");
         refused("{\"rungbook_plan\": 1, \"layers\": [], \"info\": {\"k\": 1}}", "info.k", "expected a string");
+        refused("{\"rungbook_plan\": 1, \"layers\": [], \"info\": {\"k\": \"a\\ud800\"}}", "info.k",
+                "unpaired surrogate \\ud800 at character 1");
         PlanFormatException e = assertThrows(PlanFormatException.class,
                 () -> PlanFile.parse(new byte[] {'{', (byte) 0xC3, '}'}, F));
         assertTrue(e.getMessage().contains("not valid UTF-8"), e.getMessage());

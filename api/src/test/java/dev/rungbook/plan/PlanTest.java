@@ -10,11 +10,16 @@ import static org.junit.jupiter.api.Assertions.assertTrue;
 import dev.rungbook.nn.Network;
 import dev.rungbook.nn.WeightedLayer;
 import dev.rungbook.quant.Quantizer;
+import dev.rungbook.range.RangeRule;
+import dev.rungbook.tensor.FloatFormat;
 import dev.rungbook.tensor.Tensor;
+import java.nio.charset.StandardCharsets;
+import java.nio.file.Path;
 import java.util.LinkedHashMap;
 import java.util.List;
 import java.util.Map;
 import org.junit.jupiter.api.Test;
+import org.junit.jupiter.api.io.TempDir;
 
 class PlanTest {
     private static Plan twoLayers() {
@@ -60,6 +65,40 @@ class PlanTest {
         IllegalArgumentException e = assertThrows(IllegalArgumentException.class,
                 () -> twoLayers().apply(missing));
         assertTrue(e.getMessage().contains("'fc2.weight'"), e.getMessage());
+    }
+
+    @Test
+    void roundTripsThroughAPlanFile(@TempDir Path dir) {
+        Map<String, Quantizer> m = new LinkedHashMap<>();
+        m.put("fc1", Quantizer.linear(4).perGroup(1, 32).range(RangeRule.mse()));
+        m.put("fc2", Quantizer.linear(8).asymmetric().perTensor());
+        m.put("fc3", Quantizer.nf4());
+        m.put("head", Quantizer.floatFormat(FloatFormat.E4M3));
+        m.put("emb", Quantizer.ternary().perChannel(0));
+        Plan p = Plan.of(m).withInfo("budget_bytes", "40960");
+        Path f = dir.resolve("plan.json");
+        p.write(f);
+        Plan back = Plan.read(f);
+        assertEquals(p, back);
+        assertEquals(List.of("fc1", "fc2", "fc3", "head", "emb"), back.layers());
+        assertEquals(p.toJson(), back.toJson());
+        assertTrue(p.toJson().contains("\"spec\": \"" + m.get("fc1").toText() + "\""), p.toJson());
+    }
+
+    @Test
+    void aSpecThatDoesNotParseIsRefusedNamingTheFieldAndTheToken() {
+        PlanFormatException e = assertThrows(PlanFormatException.class, () -> Plan.parse(
+                ("{\"rungbook_plan\": 1, \"layers\": [{\"layer\": \"fc1\", \"spec\": \"int8\"}, "
+                        + "{\"layer\": \"fc2\", \"spec\": \"int4 per-grop(1,32)\"}]}")
+                        .getBytes(StandardCharsets.UTF_8), Path.of("my-plan.json")));
+        assertEquals("layers[1].spec", e.field());
+        assertTrue(e.getMessage().startsWith("my-plan.json: field 'layers[1].spec': layer 'fc2': "), e.getMessage());
+        assertTrue(e.getMessage().contains("per-grop"), e.getMessage());
+        // A spec without a text form cannot be written, and the message names the layer.
+        Plan learned = Plan.of(Map.of("fc1", Quantizer.linear(4).rounding(dev.rungbook.round.Rounding.custom(
+                "up", (v, i) -> Math.ceil(v)))));
+        IllegalArgumentException w = assertThrows(IllegalArgumentException.class, learned::toJson);
+        assertTrue(w.getMessage().contains("layer 'fc1'"), w.getMessage());
     }
 
     @Test
