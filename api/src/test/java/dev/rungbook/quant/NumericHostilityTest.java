@@ -49,6 +49,8 @@ import tech.tablesaw.columns.Column;
 class NumericHostilityTest {
     /** Outcomes by "input\tfamily" -> counts of handled / refused cells. */
     private static final Map<String, int[]> OUTCOMES = new TreeMap<>();
+    /** Refusal reasons by "input\tfamily". */
+    private static final Map<String, java.util.SortedSet<String>> REASONS = new TreeMap<>();
 
     // ------------------------------------------------------------------ the specs
 
@@ -148,7 +150,7 @@ class NumericHostilityTest {
     /** A hostile input and the values it is made of. */
     enum Case {
         NAN, POS_INF, NEG_INF, DENORMAL, ALL_ZERO, ZERO_CHANNEL, ALL_EQUAL, ALL_EQUAL_NEGATIVE, EQUAL_CHANNEL,
-        ONE_ELEMENT, EMPTY_ROWS, EMPTY_COLUMNS, NEAR_MAX, HUGE_RANGE;
+        ONE_ELEMENT, SCALAR, EMPTY_ROWS, EMPTY_COLUMNS, NEAR_MAX, HUGE_RANGE;
 
         /** The constant of the all-equal inputs: not a power of two, not exact in binary. */
         static final float C = 0.3f;
@@ -208,6 +210,10 @@ class NumericHostilityTest {
                 case ONE_ELEMENT:
                     v = new float[] {C};
                     shape = new int[] {1, 1};
+                    break;
+                case SCALAR:
+                    v = new float[] {C};
+                    shape = new int[0];
                     break;
                 case EMPTY_ROWS:
                     v = new float[0];
@@ -302,6 +308,9 @@ class NumericHostilityTest {
                 && message.contains("distinct")) {
             return "fewer distinct values than levels";
         }
+        if (t.rank() == 0 && message.contains("is out of range for shape []")) {
+            return "a scalar has no axis";
+        }
         if (t.name().equals(Case.NEAR_MAX.tensorName())
                 && message.contains("this grid's levels reach beyond the float32 range")) {
             return "a level beyond float32";
@@ -334,29 +343,35 @@ class NumericHostilityTest {
         } catch (IllegalArgumentException e) {
             String m = Objects.requireNonNullElse(e.getMessage(), "");
             assertTrue(m.contains(t.label()), "refusal must name the tensor: " + m);
+            String why;
             if (c == Case.NAN || c == Case.POS_INF || c == Case.NEG_INF) {
                 String bad = c == Case.NAN ? "NaN" : (c == Case.POS_INF ? "Infinity" : "-Infinity");
                 assertTrue(m.contains("value " + bad + " at index"), "refusal must name the bad value: " + m);
                 assertTrue(m.contains("NaN and infinite values cannot be quantized"), m);
+                why = "non-finite value";
             } else {
-                String why = allowedRefusal(q, t, m);
+                why = allowedRefusal(q, t, m);
                 if (why == null) {
                     fail(c + " on " + q.label() + " was refused without a documented reason: " + m);
                 }
             }
-            record(c, family, false);
+            record(c, family, why);
             return;
         }
         if (c == Case.NAN || c == Case.POS_INF || c == Case.NEG_INF) {
             fail(c + " on " + q.label() + " was quantized instead of refused: " + r);
         }
         checkHandled(q, c, t, r);
-        record(c, family, true);
+        record(c, family, null);
     }
 
-    private static synchronized void record(Case c, String family, boolean handled) {
-        OUTCOMES.computeIfAbsent(c.name().toLowerCase(java.util.Locale.ROOT) + "\t" + family,
-                k -> new int[2])[handled ? 0 : 1]++;
+    /** Counts a cell: handled if {@code refusal} is null, else refused for that reason. */
+    private static synchronized void record(Case c, String family, String refusal) {
+        String key = c.name().toLowerCase(java.util.Locale.ROOT) + "\t" + family;
+        OUTCOMES.computeIfAbsent(key, k -> new int[2])[refusal == null ? 0 : 1]++;
+        if (refusal != null) {
+            REASONS.computeIfAbsent(key, k -> new java.util.TreeSet<>()).add(refusal);
+        }
     }
 
     private static void checkHandled(Quantizer q, Case c, Tensor t, Quantized r) {
@@ -393,7 +408,8 @@ class NumericHostilityTest {
                 break;
             case ALL_EQUAL:
             case ALL_EQUAL_NEGATIVE:
-            case ONE_ELEMENT: {
+            case ONE_ELEMENT:
+            case SCALAR: {
                 float k = x[0];
                 boolean exact = constantIsExact(q, k);
                 for (int i = 0; i < y.length; i++) {
@@ -512,13 +528,65 @@ class NumericHostilityTest {
         checkTable(where + " study", Study.of(m).compare(q).table());
     }
 
+    // ------------------------------------------------------------------ the bugs this matrix found, one by one
+
+    @org.junit.jupiter.api.Test
+    void midRiseGridMapsAnAllZeroChannelToZero() {
+        // Found by the matrix: the all-zero row got scale 1 and the level s/2 = 0.5. Worked from the mid-rise
+        // definition (Quantizer.midRise Javadoc): row 1 has a = 1, s = a / 2^(b-1) = 1/8, top level a - s/2 = 0.9375.
+        Quantized r = Quantizer.linear(4).midRise().apply(Tensor.of(new float[] {0, 0, 1, -1}, 2, 2).withName("m"));
+        assertEquals(List.of(0f, 0f, 0.9375f, -0.9375f), boxed(r.dequantized().toFloatArray()));
+    }
+
+    @org.junit.jupiter.api.Test
+    void directedRoundingKeepsValuesThatAreLevels() {
+        // Found by the matrix: x / s for x on a level came out as 126.99999999 (the float32 scale is rounded), so
+        // floor moved -0.3 to code -128 and ceil 1e30 to 126. int8 sym on max|x| = 0.3: codes -127 and 127 are the
+        // levels -0.3 and 0.3 (fl(s * 127) = 0.3 by construction of the scale).
+        Tensor t = Tensor.of(new float[] {-0.3f, 0.3f, 0.3f, -0.3f}, 1, 4).withName("d");
+        for (Rounding rule : List.of(Rounding.floor(), Rounding.ceil(), Rounding.stochastic(1))) {
+            Quantized r = Quantizer.linear(8).rounding(rule).apply(t);
+            assertEquals(List.of(-127, 127, 127, -127), java.util.Arrays.stream(r.codes().toIntArray()).boxed()
+                    .collect(java.util.stream.Collectors.toList()), rule.label());
+            assertEquals(boxed(t.toFloatArray()), boxed(r.dequantized().toFloatArray()), rule.label());
+        }
+    }
+
+    @org.junit.jupiter.api.Test
+    void gridsWhoseLevelsOverflowFloat32AreRefused() {
+        // Found by the matrix: asymmetric int8 on [-MAX, MAX] has s = 2 MAX / 255 and zero point 0, so code -128
+        // stands for -128 s = -1.0039 MAX, which is -Infinity in float32; NF4 with a power-of-two scale rounded
+        // MAX up to 2^128 (Infinity) and dequantized level 0 to NaN.
+        Tensor t = Tensor.of(new float[] {Float.MAX_VALUE, -Float.MAX_VALUE, 1f, 0f}, 1, 4).withName("big");
+        for (Quantizer q : List.of(Quantizer.linear(8).asymmetric(), Quantizer.nf4().blockSize(4).powerOfTwoScale(),
+                Quantizer.mxInt8().blockSize(4))) {
+            IllegalArgumentException e = org.junit.jupiter.api.Assertions.assertThrows(
+                    IllegalArgumentException.class, () -> q.apply(t), q.label());
+            assertTrue(e.getMessage().startsWith("tensor 'big': value "), e.getMessage());
+            assertTrue(e.getMessage().contains("this grid's levels reach beyond the float32 range"), e.getMessage());
+        }
+        // the symmetric min-max grid keeps every level within float32: +-MAX land one ulp inside at worst
+        float[] y = Quantizer.linear(8).apply(t).dequantized().toFloatArray();
+        assertEquals(Float.MAX_VALUE, y[0], Math.ulp(Float.MAX_VALUE));
+        assertEquals(-Float.MAX_VALUE, y[1], Math.ulp(Float.MAX_VALUE));
+    }
+
+    private static List<Float> boxed(float[] v) {
+        List<Float> l = new ArrayList<>();
+        for (float f : v) {
+            l.add(f);
+        }
+        return l;
+    }
+
     // ------------------------------------------------------------------ figures for docs/reliability.md
 
     @AfterAll
     static void writeOutcomes() {
-        StringBuilder b = new StringBuilder("input\tfamily\thandled\trefused\n");
+        StringBuilder b = new StringBuilder("input\tfamily\thandled\trefused\trefusals\n");
         for (Map.Entry<String, int[]> e : OUTCOMES.entrySet()) {
             b.append(e.getKey()).append('\t').append(e.getValue()[0]).append('\t').append(e.getValue()[1])
+                    .append('\t').append(String.join("; ", REASONS.getOrDefault(e.getKey(), new java.util.TreeSet<>())))
                     .append('\n');
         }
         try {
