@@ -571,6 +571,18 @@ class NumericHostilityTest {
         assertEquals(-Float.MAX_VALUE, y[1], Math.ulp(Float.MAX_VALUE));
     }
 
+    @org.junit.jupiter.api.Test
+    void reliabilityPageListsEveryInput() throws IOException {
+        // docs/reliability.md is rebuilt by docs/make_reliability.py from target/numeric-hostility.tsv; a new input
+        // must reach the page (rerun the script after this test class).
+        String page = Files.readString(Path.of("../docs/reliability.md"));
+        for (Case c : Case.values()) {
+            String row = "| " + c.name().toLowerCase(java.util.Locale.ROOT).replace('_', ' ') + " |";
+            assertTrue(page.contains(row), "docs/reliability.md has no numeric row " + row
+                    + "; run python3 docs/make_reliability.py");
+        }
+    }
+
     private static List<Float> boxed(float[] v) {
         List<Float> l = new ArrayList<>();
         for (float f : v) {
