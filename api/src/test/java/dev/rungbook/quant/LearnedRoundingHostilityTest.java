@@ -11,7 +11,6 @@ import dev.rungbook.round.LayerRounding;
 import dev.rungbook.round.Rounding;
 import dev.rungbook.tensor.Tensor;
 import dev.rungbook.testing.Fixtures;
-import java.util.List;
 import java.util.concurrent.atomic.AtomicReference;
 import java.util.stream.Stream;
 import org.junit.jupiter.params.ParameterizedTest;
@@ -22,17 +21,12 @@ import org.junit.jupiter.params.provider.ValueSource;
  * Numeric hostility for the learned roundings (adaptive rounding and error feedback): NaN and infinite calibration
  * inputs or weights are refused naming the tensor and the position; calibration inputs without variance (all zero,
  * or every sample the same vector) and all-zero weights are handled, with the codes that follow from the published
- * procedures. Outcomes are counted in {@link NumericHostilityTest}'s figures through {@link #CASES}.
+ * procedures. docs/make_reliability.py reports this class's test count from its surefire report.
  */
 class LearnedRoundingHostilityTest {
     private static final int OUT = 6;
     private static final int IN = 16;
     private static final int SAMPLES = 40;
-
-    /** The cases of this class, for docs/make_reliability.py (kept in step with the test methods below). */
-    static final List<String> CASES = List.of("nan calibration input", "infinite calibration input",
-            "nan weight under learned rounding", "all-zero calibration inputs", "identical calibration samples",
-            "all-zero weights");
 
     static Stream<String> rules() {
         return Stream.of("adaptive", "errorFeedback");
