@@ -110,8 +110,8 @@ public final class IntegerNetwork {
         if (bits < 2 || bits > 8) {
             throw new IllegalArgumentException("integer network bits must be in [2, 8], got " + bits);
         }
-        Mlp mlp = Mlp.of(net);
         List<Linear> linears = net.linearLayers();
+        boolean[] reluAfter = reluAfter(net);
         int qmax = (1 << bits) - 1;
         double[] inRange = range(TensorAccess.data(calibration));
         double sx = scaleOf(inRange, qmax);
@@ -124,7 +124,7 @@ public final class IntegerNetwork {
         for (int l = 0; l < linears.size(); l++) {
             Linear lin = linears.get(l);
             act = lin.forward(act);
-            boolean relu = mlp.reluAfter[l];
+            boolean relu = reluAfter[l];
             float[] y = TensorAccess.data(act);
             if (relu) {
                 float[] r = new float[y.length];
@@ -161,6 +161,23 @@ public final class IntegerNetwork {
         return new IntegerNetwork(out, inputScale, inputZp, bits);
     }
 
+    /** Whether a ReLU follows each linear layer; the network must start with one and hold only linear and ReLU. */
+    private static boolean[] reluAfter(Network net) {
+        boolean[] relu = new boolean[net.linearLayers().size()];
+        int li = -1;
+        for (Layer l : net.layers()) {
+            if (l instanceof Linear) {
+                li++;
+            } else if (l instanceof Relu && li >= 0) {
+                relu[li] = true;
+            } else {
+                throw new IllegalArgumentException("the integer network handles linear and ReLU layers starting "
+                        + "with a linear layer; got " + l);
+            }
+        }
+        return relu;
+    }
+
     /**
      * The integer form of a calibrated {@link SimulatedNetwork}, with its grids taken over unchanged: the input's and
      * every layer output's scale and zero point, each weight's codes (whatever rounding chose them) and per-channel
@@ -175,7 +192,7 @@ public final class IntegerNetwork {
      */
     public static IntegerNetwork of(SimulatedNetwork sim) {
         Network net = sim.reference();
-        Mlp mlp = Mlp.of(net);
+        boolean[] relu = reluAfter(net);
         CalibratedActivation in = sim.input().orElseThrow(() -> new IllegalArgumentException(
                 "integer network: the input must be quantized"));
         int bits = activationBits(in);
@@ -210,7 +227,7 @@ public final class IntegerNetwork {
             double sy = a.scale();
             int zy = (int) a.zeroPoint();
             out.add(new IntLayer(name, inF, o, qwb, integerBias(lin, sw, sx), sw, multipliers(sw, sx, sy), sy, zy,
-                    mlp.reluAfter[l], wbits));
+                    relu[l], wbits));
             sx = sy;
             zx = zy;
         }
