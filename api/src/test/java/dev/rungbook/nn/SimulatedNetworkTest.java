@@ -258,6 +258,33 @@ class SimulatedNetworkTest {
     }
 
     @Test
+    void convolutionalNetworksJoinThroughWeightedLayer() {
+        // Common practice: int8 per-channel weights and per-tensor activations keep a small conv net's output SQNR
+        // well above 20 dB.
+        Network net = LayersTest.convNet(40).foldBatchNorm();
+        Tensor cal = Tensor.of(dev.rungbook.testing.Fixtures.gaussian(81, 128 * 2 * 8 * 8), 128, 2, 8, 8);
+        Tensor x = Tensor.of(dev.rungbook.testing.Fixtures.gaussian(82, 64 * 2 * 8 * 8), 64, 2, 8, 8);
+        SimulatedNetwork sim = NetworkQuantization.of(net).calibrate(cal);
+        assertEquals(List.of("conv1", "conv2", "fc"), sim.layerNames());
+        Table t = sim.layerErrors(x);
+        assertEquals(List.of("input", "conv1", "conv2", "fc"), t.stringColumn("layer").asList());
+        double sqnr = t.doubleColumn("cumulative_sqnr_db").get(3);
+        assertTrue(sqnr > 20, "conv net int8 output SQNR " + sqnr);
+        assertEquals(LayerErrorsTest.direct(net.forward(x), sim.forward(x))[1], sqnr, 1e-9 * sqnr);
+        // unfolded batch norms run in float inside the stage of the layer before them
+        SimulatedNetwork unfolded = NetworkQuantization.of(LayersTest.convNet(40)).floatWeights().floatActivations()
+                .calibrate(cal);
+        assertArrayEquals(TensorAccess.data(LayersTest.convNet(40).forward(x)),
+                TensorAccess.data(unfolded.forward(x)));
+        IllegalArgumentException e = assertThrows(IllegalArgumentException.class,
+                () -> NetworkQuantization.of(net).learnedRounding(Rounding::errorFeedback).calibrate(cal));
+        assertTrue(e.getMessage().startsWith("conv1: learned rounding needs"), e.getMessage());
+        assertEquals(Quantizer.linear(4), NetworkQuantization.of(net)
+                .weightQuantizers(Map.of("conv2", Quantizer.linear(4))).calibrate(cal).weights("conv2").orElseThrow()
+                .spec());
+    }
+
+    @Test
     void refusesActivationQuantizersThatCannotBeCalibrated() {
         Network net = Trainer.initialMlp(55, 4, 6, 3);
         NetworkQuantization q = NetworkQuantization.of(net);
