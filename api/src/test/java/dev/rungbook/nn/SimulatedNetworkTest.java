@@ -239,6 +239,24 @@ class SimulatedNetworkTest {
     }
 
     @Test
+    void adaptiveRoundingRunsPerLayerOnCapturedInputs() {
+        // Source: AdaRound's objective is the layer's output error on its calibration inputs (Nagel et al. 2020);
+        // learned on the captured inputs, it should not do worse there than rounding to nearest (it starts from it).
+        Network net = Trainer.initialMlp(56, 8, 16, 3);
+        Tensor cal = EqualizationTest.inputs(57, 128, 8);
+        NetworkQuantization base = NetworkQuantization.of(net).weights(Quantizer.linear(3)).floatActivations()
+                .floatInput();
+        SimulatedNetwork nearest = base.calibrate(cal);
+        SimulatedNetwork learned = base.layer("fc1", l -> l.learnedRounding(
+                c -> Rounding.adaptive(c).iterations(300).seed(3))).calibrate(cal);
+        double en = nearest.layerErrors(cal).doubleColumn("alone_mse").get(1);
+        double el = learned.layerErrors(cal).doubleColumn("alone_mse").get(1);
+        assertTrue(el <= en * 1.0001, "adaptive " + el + " vs nearest " + en);
+        assertTrue(learned.weights("fc1").orElseThrow().spec().rounding().label().startsWith("adaptive("));
+        assertEquals(Rounding.nearest(), learned.weights("fc2").orElseThrow().spec().rounding());
+    }
+
+    @Test
     void perLayerWeightQuantizersFromAMap() {
         Network net = Trainer.initialMlp(53, 8, 12, 10, 3);
         NetworkQuantization q = NetworkQuantization.of(net)
