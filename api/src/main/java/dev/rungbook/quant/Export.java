@@ -382,7 +382,11 @@ public final class Export {
         return out;
     }
 
-    static Pattern glob(String glob) {
+    /**
+     * The pattern of a tensor-name glob as {@link #spec(String, Quantizer)} reads it: {@code *} any run of characters
+     * (dots included), {@code ?} one character, everything else literal; it must match the whole name.
+     */
+    public static Pattern glob(String glob) {
         Objects.requireNonNull(glob, "glob");
         StringBuilder b = new StringBuilder();
         for (int i = 0; i < glob.length(); i++) {

@@ -1,0 +1,111 @@
+package dev.rungbook.cli;
+
+import dev.rungbook.io.Checkpoint;
+import dev.rungbook.quant.Export;
+import dev.rungbook.quant.Quantizer;
+import dev.rungbook.study.Study;
+import java.io.PrintWriter;
+import java.nio.file.Files;
+import java.nio.file.Path;
+import java.util.ArrayList;
+import java.util.HashSet;
+import java.util.List;
+import java.util.Set;
+import java.util.concurrent.Callable;
+import java.util.regex.Pattern;
+import org.knowm.xchart.internal.chartpart.IChart;
+import picocli.CommandLine.Command;
+import picocli.CommandLine.Model.CommandSpec;
+import picocli.CommandLine.Option;
+import picocli.CommandLine.ParameterException;
+import picocli.CommandLine.Parameters;
+import picocli.CommandLine.Spec;
+import tech.tablesaw.api.Table;
+
+/** {@code rungbook study FILE --spec SPEC --spec SPEC ...}: compares specs over the tensors of a checkpoint. */
+@Command(name = "study", mixinStandardHelpOptions = true,
+        description = {"Compare quantizer specs over the tensors of a checkpoint: bits per weight, bytes and error",
+            "metrics (MSE, SQNR, cosine, ...) per tensor and spec, and a summary per spec. Each tensor is read once",
+            "(memory-mapped) for all specs and dropped before the next, so a checkpoint larger than memory can be",
+            "studied. Exit codes: 0 ok, 1 failure (unreadable file, spec that does not fit a tensor), 2 usage error",
+            "(including a bad spec, whose message names the bad token)."})
+final class StudyCommand implements Callable<Integer> {
+    @Spec
+    CommandSpec spec;
+
+    @Parameters(index = "0", paramLabel = "FILE", description = "The checkpoint to study.")
+    Path file;
+
+    @Option(names = "--spec", required = true, paramLabel = "SPEC", converter = SpecConverter.class,
+            description = {SpecConverter.HELP, "Repeat for each spec to compare."})
+    List<Quantizer> specs;
+
+    @Option(names = "--tensors", paramLabel = "GLOB", description = {"Study only tensors whose names match (* any run "
+        + "of characters, ? one character); repeatable. Default: every tensor."})
+    List<String> tensors = new ArrayList<>();
+
+    @Option(names = "--report", paramLabel = "REPORT", description = "Also write a report: .html (tables and charts "
+            + "embedded), .json or .csv (one row per tensor and spec), by extension.")
+    Path report;
+
+    @Override
+    public Integer call() throws Exception {
+        if (report != null && Report.kind(report) == null) {
+            throw new ParameterException(spec.commandLine(), "--report must end in .html, .json or .csv, got "
+                    + report);
+        }
+        Set<Quantizer> seen = new HashSet<>();
+        for (Quantizer q : specs) {
+            if (!seen.add(q)) {
+                throw new ParameterException(spec.commandLine(), "--spec '" + q.label() + "' is given twice");
+            }
+        }
+        PrintWriter out = spec.commandLine().getOut();
+        return Failures.guard("study", spec.commandLine().getErr(), () -> run(out));
+    }
+
+    private int run(PrintWriter out) throws Exception {
+        if (!Files.isRegularFile(file)) {
+            throw new IllegalArgumentException("no checkpoint file at " + file.toAbsolutePath());
+        }
+        try (Checkpoint c = Checkpoint.open(file)) {
+            List<Pattern> globs = new ArrayList<>();
+            for (String g : tensors.isEmpty() ? List.of("*") : tensors) {
+                globs.add(Export.glob(g));
+            }
+            Study s = Study.of(c);
+            if (!tensors.isEmpty()) {
+                if (c.names().stream().noneMatch(n -> globs.stream().anyMatch(p -> p.matcher(n).matches()))) {
+                    throw new IllegalArgumentException(file + ": no tensor matches --tensors " + tensors + "; names: "
+                            + QuantizeCommand.preview(c.names()));
+                }
+                s = s.filter(n -> globs.stream().anyMatch(p -> p.matcher(n).matches()));
+            }
+            int count = s.tensorNames().size();
+            Table rows = s.progress(new OneTaskProgress(TerminalProgress.toStderr(), "study",
+                    "study " + file.getFileName())).compare(specs.toArray(new Quantizer[0])).table();
+            Table summary = ResultTables.summary(rows);
+            out.printf("%s: %d tensors x %d specs%n", file, count, specs.size());
+            out.print(ResultTables.text(summary));
+            if (report != null) {
+                List<IChart> charts = new ArrayList<>();
+                IChart bits = ResultTables.sqnrVsBits(summary);
+                if (bits != null) {
+                    charts.add(bits);
+                }
+                IChart heat = ResultTables.sqnrHeatMap(rows, "SQNR (dB) per tensor and spec");
+                if (heat != null) {
+                    charts.add(heat);
+                }
+                List<String> notes = List.of("Checkpoint: " + file + ", " + count + " tensors, " + specs.size()
+                        + " specs.", "bits_per_weight counts bit-packed codes plus scales and zero points; the summary"
+                        + " weights bits and MSE by element count; sqnr_db_mean is the mean over tensors of their SQNR"
+                        + " (finite values), sqnr_db_min the worst tensor.");
+                Report.write(report, "rungbook study " + file.getFileName(), notes, summary, rows, charts);
+                out.println("report: " + report);
+            }
+            out.flush();
+        }
+        return 0;
+    }
+}
