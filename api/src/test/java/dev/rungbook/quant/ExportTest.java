@@ -349,6 +349,15 @@ class ExportTest {
     }
 
     @Test
+    void shapeProblemsAreNamedBeforeAnyWork() {
+        Quantizer g = Quantizer.parse("int4 per-group(1,16)");
+        assertEquals(Optional.of("axis 1 is out of range for shape [3]"), g.shapeProblem(3));
+        assertEquals(Optional.of("group size 16 does not divide dimension 1 of shape [4, 24]"), g.shapeProblem(4, 24));
+        assertEquals(Optional.empty(), g.shapeProblem(4, 32));
+        assertEquals(Optional.empty(), Quantizer.parse("int8 per-tensor").shapeProblem());
+    }
+
+    @Test
     void globsMatchWholeNames() {
         assertTrue(Export.glob("*.weight").matcher("layers.0.attn.weight").matches());
         assertFalse(Export.glob("*.weight").matcher("layers.0.weight.scale").matches());

@@ -24,9 +24,9 @@ import picocli.CommandLine.Spec;
 
 /** {@code rungbook inspect FILE [--json]}: tensor names, dtypes, shapes and statistics. */
 @Command(name = "inspect", mixinStandardHelpOptions = true,
-        description = {"List the tensors of a checkpoint (.safetensors, sharded index, .npy, .npz): name, dtype, shape,",
-            "element count and statistics (min, max, mean, std, max |x|, NaN and infinity counts).",
-            "Tensors are read one at a time (memory-mapped), so a checkpoint larger than memory can be inspected.",
+        description = {"List the tensors of a checkpoint (.safetensors, sharded index, .npy, .npz): name, dtype, "
+            + "shape, element count and statistics (min, max, mean, std, max |x|, NaN and infinity counts). Tensors "
+            + "are read one at a time (memory-mapped), so a checkpoint larger than memory can be inspected.",
             "Exit codes: 0 ok, 1 the file cannot be read, 2 usage error."})
 final class InspectCommand implements Callable<Integer> {
     @Spec

@@ -29,12 +29,13 @@ import tech.tablesaw.api.Table;
 
 /** {@code rungbook quantize FILE --spec SPEC --out OUT}: applies a spec to matching tensors and exports the result. */
 @Command(name = "quantize", mixinStandardHelpOptions = true,
-        description = {"Quantize the tensors of a checkpoint with one spec and write a quantized safetensors export",
-            "(codes, scales, zero points, level tables, the spec text of each tensor in __metadata__; layout in the",
-            "Javadoc of dev.rungbook.quant.Export), or with --dequantized the float32 values the codes stand for.",
-            "Tensors not selected by --tensors are copied unchanged. Tensors are read, quantized and written one at",
-            "a time. Exit codes: 0 ok, 1 failure (unreadable file, spec that does not fit a tensor), 2 usage error",
-            "(including a bad spec, whose message names the bad token)."})
+        description = {"Quantize the tensors of a checkpoint with one spec and write a quantized safetensors export "
+            + "(codes, scales, zero points, level tables, and the spec text of each tensor in __metadata__; the layout "
+            + "is documented in dev.rungbook.quant.Export), or with --dequantized the float32 values the codes stand "
+            + "for. Tensors not selected by --tensors are copied unchanged. Tensors are read, quantized and written "
+            + "one at a time.",
+            "Exit codes: 0 ok, 1 failure (unreadable file, a spec that does not fit a tensor), 2 usage error "
+            + "(including a bad spec, whose message names the bad token and its column)."})
 final class QuantizeCommand implements Callable<Integer> {
     @Spec
     CommandSpec spec;
@@ -119,7 +120,7 @@ final class QuantizeCommand implements Callable<Integer> {
             stdout.print(ResultTables.text(summary));
             if (report != null) {
                 List<IChart> charts = new ArrayList<>();
-                IChart heat = ResultTables.sqnrHeatMap(table, "SQNR (dB) per tensor");
+                IChart heat = ResultTables.sqnrHeatMap(table, "SQNR (dB) per tensor", false);
                 if (heat != null) {
                     charts.add(heat);
                 }

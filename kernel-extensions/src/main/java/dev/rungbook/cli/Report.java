@@ -119,7 +119,7 @@ final class Report {
         JsonObject root = new JsonObject();
         root.addProperty("title", title);
         JsonArray n = new JsonArray();
-        notes.forEach(n::add);
+        notes.stream().filter(x -> !x.isEmpty()).forEach(n::add);
         root.add("notes", n);
         root.add("summary", summary == null ? new JsonArray() : jsonRows(summary));
         root.add("rows", jsonRows(rows));
@@ -132,6 +132,9 @@ final class Report {
                 .append(TableRenderer.escape(title)).append("</title><style>").append(STYLE)
                 .append("</style></head><body>\n<h1>").append(TableRenderer.escape(title)).append("</h1>\n");
         for (String note : notes) {
+            if (note.isEmpty()) {
+                continue;
+            }
             b.append("<p>").append(TableRenderer.escape(note)).append("</p>\n");
         }
         if (summary != null) {

@@ -23,7 +23,7 @@ final class ResultTables {
     }
 
     /**
-     * One row per spec (in order of first appearance): {@code spec, tensors, elements, bits_per_weight} (weighted by
+     * One row per spec (in order of first appearance): {@code #} (1, 2, ...), {@code spec, tensors, elements, bits_per_weight} (weighted by
      * elements), {@code bytes} (sum), {@code mse} (weighted by elements), {@code sqnr_db_mean} (mean over tensors of
      * the finite values) and {@code sqnr_db_min} (the worst tensor).
      */
@@ -52,6 +52,7 @@ final class ResultTables {
             }
             a[7] = Math.min(a[7], s);
         }
+        IntColumn number = IntColumn.create("#");
         StringColumn sc = StringColumn.create(StudyResult.SPEC);
         IntColumn tc = IntColumn.create("tensors");
         LongColumn ec = LongColumn.create(StudyResult.ELEMENTS);
@@ -61,6 +62,7 @@ final class ResultTables {
         DoubleColumn qc = DoubleColumn.create("sqnr_db_mean");
         DoubleColumn qm = DoubleColumn.create("sqnr_db_min");
         acc.forEach((k, a) -> {
+            number.append(number.size() + 1);
             sc.append(k);
             tc.append((int) a[0]);
             ec.append((long) a[1]);
@@ -70,7 +72,7 @@ final class ResultTables {
             qc.append(a[6] == 0 ? a[7] : a[5] / a[6]);
             qm.append(a[7]);
         });
-        return Table.create("summary", sc, tc, ec, bc, yc, mc, qc, qm);
+        return Table.create("summary", number, sc, tc, ec, bc, yc, mc, qc, qm);
     }
 
     /** Plain-text rendering of a table with every row (for the terminal). */
@@ -108,8 +110,12 @@ final class ResultTables {
         return b.toString();
     }
 
-    /** SQNR (dB) of each tensor (rows, at most {@link #HEAT_MAP_ROWS}) under each spec (columns); null if none. */
-    static IChart sqnrHeatMap(Table rows, String title) {
+    /**
+     * SQNR (dB, rounded to 0.1) of each tensor (rows, at most {@link #HEAT_MAP_ROWS}) under each spec (columns, named
+     * by their row number {@code #} in the {@link #summary} when {@code numbered}, else by the spec); null if no value
+     * is finite.
+     */
+    static IChart sqnrHeatMap(Table rows, String title, boolean numbered) {
         List<String> tensors = new ArrayList<>();
         List<String> specs = new ArrayList<>();
         StringColumn tc = rows.stringColumn(StudyResult.TENSOR);
@@ -132,11 +138,19 @@ final class ResultTables {
             int i = tensors.indexOf(tc.get(r));
             double s = sqnr.getDouble(r);
             if (i >= 0 && Double.isFinite(s)) {
-                v[i][specs.indexOf(sc.get(r))] = s;
+                v[i][specs.indexOf(sc.get(r))] = Math.round(s * 10) / 10.0;
                 any = true;
             }
         }
-        return any ? Charts.heatMap(title, "tensor", "spec", tensors, specs, v) : null;
+        List<String> cols = specs;
+        if (numbered) {
+            cols = new ArrayList<>();
+            for (int k = 1; k <= specs.size(); k++) {
+                cols.add(Integer.toString(k));
+            }
+        }
+        return any ? Charts.heatMap(title, "tensor", numbered ? "spec (# of the summary)" : "spec", tensors, cols, v)
+                : null;
     }
 
     /** Mean SQNR versus bits per weight, one point per spec of a {@link #summary} table; null if nothing is finite. */

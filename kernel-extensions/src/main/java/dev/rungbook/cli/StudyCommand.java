@@ -1,6 +1,7 @@
 package dev.rungbook.cli;
 
 import dev.rungbook.io.Checkpoint;
+import dev.rungbook.io.TensorInfo;
 import dev.rungbook.quant.Export;
 import dev.rungbook.quant.Quantizer;
 import dev.rungbook.study.Study;
@@ -8,6 +9,7 @@ import java.io.PrintWriter;
 import java.nio.file.Files;
 import java.nio.file.Path;
 import java.util.ArrayList;
+import java.util.Arrays;
 import java.util.HashSet;
 import java.util.List;
 import java.util.Set;
@@ -24,11 +26,12 @@ import tech.tablesaw.api.Table;
 
 /** {@code rungbook study FILE --spec SPEC --spec SPEC ...}: compares specs over the tensors of a checkpoint. */
 @Command(name = "study", mixinStandardHelpOptions = true,
-        description = {"Compare quantizer specs over the tensors of a checkpoint: bits per weight, bytes and error",
-            "metrics (MSE, SQNR, cosine, ...) per tensor and spec, and a summary per spec. Each tensor is read once",
-            "(memory-mapped) for all specs and dropped before the next, so a checkpoint larger than memory can be",
-            "studied. Exit codes: 0 ok, 1 failure (unreadable file, spec that does not fit a tensor), 2 usage error",
-            "(including a bad spec, whose message names the bad token)."})
+        description = {"Compare quantizer specs over the tensors of a checkpoint: bits per weight, bytes and error "
+            + "metrics (MSE, SQNR, cosine, ...) per tensor and spec, and a summary per spec. Each tensor is read once "
+            + "(memory-mapped) for all specs and dropped before the next, so a checkpoint larger than memory can be "
+            + "studied.",
+            "Exit codes: 0 ok, 1 failure (unreadable file, a spec that does not fit a tensor), 2 usage error "
+            + "(including a bad spec, whose message names the bad token and its column)."})
 final class StudyCommand implements Callable<Integer> {
     @Spec
     CommandSpec spec;
@@ -47,6 +50,19 @@ final class StudyCommand implements Callable<Integer> {
     @Option(names = "--report", paramLabel = "REPORT", description = "Also write a report: .html (tables and charts "
             + "embedded), .json or .csv (one row per tensor and spec), by extension.")
     Path report;
+
+    @Option(names = "--skip-unfit", description = "Leave out tensors that some spec does not fit (for example a 1-D "
+            + "bias under per-group(1,128)) instead of failing.")
+    boolean skipUnfit;
+
+    private static int[] intShape(TensorInfo info) {
+        long[] l = info.shape();
+        int[] s = new int[l.length];
+        for (int k = 0; k < l.length; k++) {
+            s[k] = (int) l[k];
+        }
+        return s;
+    }
 
     @Override
     public Integer call() throws Exception {
@@ -81,11 +97,34 @@ final class StudyCommand implements Callable<Integer> {
                 }
                 s = s.filter(n -> globs.stream().anyMatch(p -> p.matcher(n).matches()));
             }
+            List<String> skipped = new ArrayList<>();
+            for (String n : s.tensorNames()) {
+                TensorInfo info = c.info(n);
+                for (Quantizer q : specs) {
+                    String problem = !info.fitsInTensor() ? "too large to load as one tensor"
+                            : q.shapeProblem(intShape(info)).orElse(null);
+                    if (problem != null && !skipUnfit) {
+                        throw new IllegalArgumentException(file + ": tensor '" + n + "' " + Arrays.toString(info.shape())
+                                + ": " + problem + " (spec " + q.label() + "); narrow --tensors, or add --skip-unfit");
+                    }
+                    if (problem != null) {
+                        skipped.add(n);
+                        break;
+                    }
+                }
+            }
+            if (!skipped.isEmpty()) {
+                if (skipped.size() == s.tensorNames().size()) {
+                    throw new IllegalArgumentException(file + ": no selected tensor fits every spec");
+                }
+                s = s.filter(n -> !skipped.contains(n));
+            }
             int count = s.tensorNames().size();
             Table rows = s.progress(new OneTaskProgress(TerminalProgress.toStderr(), "study",
                     "study " + file.getFileName())).compare(specs.toArray(new Quantizer[0])).table();
             Table summary = ResultTables.summary(rows);
-            out.printf("%s: %d tensors x %d specs%n", file, count, specs.size());
+            out.printf("%s: %d tensors x %d specs%s%n", file, count, specs.size(), skipped.isEmpty() ? ""
+                    : " (skipped, as some spec does not fit them: " + String.join(", ", skipped) + ")");
             out.print(ResultTables.text(summary));
             if (report != null) {
                 List<IChart> charts = new ArrayList<>();
@@ -93,14 +132,15 @@ final class StudyCommand implements Callable<Integer> {
                 if (bits != null) {
                     charts.add(bits);
                 }
-                IChart heat = ResultTables.sqnrHeatMap(rows, "SQNR (dB) per tensor and spec");
+                IChart heat = ResultTables.sqnrHeatMap(rows, "SQNR (dB) per tensor and spec", true);
                 if (heat != null) {
                     charts.add(heat);
                 }
                 List<String> notes = List.of("Checkpoint: " + file + ", " + count + " tensors, " + specs.size()
                         + " specs.", "bits_per_weight counts bit-packed codes plus scales and zero points; the summary"
                         + " weights bits and MSE by element count; sqnr_db_mean is the mean over tensors of their SQNR"
-                        + " (finite values), sqnr_db_min the worst tensor.");
+                        + " (finite values), sqnr_db_min the worst tensor.", skipped.isEmpty() ? ""
+                        : "Skipped (some spec does not fit them): " + String.join(", ", skipped) + ".");
                 Report.write(report, "rungbook study " + file.getFileName(), notes, summary, rows, charts);
                 out.println("report: " + report);
             }

@@ -43,7 +43,7 @@ class BatchCommandsTest {
     static Run run(String... args) {
         StringWriter out = new StringWriter();
         StringWriter err = new StringWriter();
-        CommandLine cl = new CommandLine(new Main());
+        CommandLine cl = Main.commandLine();
         cl.setOut(new PrintWriter(out, true));
         cl.setErr(new PrintWriter(err, true));
         int code = cl.execute(args);
@@ -158,6 +158,7 @@ class BatchCommandsTest {
         Run bad = run("quantize", ckpt.toString(), "--spec", "int4 per-grup(1,128)", "--out", path("x.safetensors"));
         assertEquals(2, bad.code());
         assertTrue(bad.err().contains("'per-grup(1,128)' at column 6"), bad.err());
+        assertTrue(bad.err().contains("Try 'rungbook quantize --help'"), bad.err());
         Run same = run("quantize", ckpt.toString(), "--spec", "int8", "--out", ckpt.toString());
         assertEquals(1, same.code());
         assertTrue(same.err().contains("refusing to overwrite"), same.err());
@@ -208,9 +209,16 @@ class BatchCommandsTest {
         assertEquals(2, bad.code());
         assertTrue(bad.err().contains("'blok(8)' at column 5"), bad.err());
         assertEquals(2, run("study", ckpt.toString(), "--spec", "int8", "--spec", "int8 sym").code());
-        Run unfit = run("study", ckpt.toString(), "--spec", "int4 per-group(1,8)");
+        Run unfit = run("study", ckpt.toString(), "--spec", "int8", "--spec", "int4 per-group(1,8)");
         assertEquals(1, unfit.code());
-        assertTrue(unfit.err().contains("fc1.bias"), unfit.err());
+        assertTrue(unfit.err().contains("tensor 'fc1.bias' [8]: axis 1 is out of range"), unfit.err());
+        assertTrue(unfit.err().contains("--skip-unfit"), unfit.err());
+        Run skip = run("study", ckpt.toString(), "--spec", "int8", "--spec", "int4 per-group(1,8)", "--skip-unfit",
+                "--report", path("k.csv"));
+        assertEquals(0, skip.code(), skip.err());
+        assertTrue(skip.out().contains("2 tensors x 2 specs (skipped, as some spec does not fit them: fc1.bias)"),
+                skip.out());
+        assertEquals(5, Files.readAllLines(dir.resolve("k.csv")).size());
         assertEquals(2, run("study", ckpt.toString()).code());
     }
 }
