@@ -152,8 +152,9 @@ public final class QuantizedCheckpoint implements AutoCloseable {
         Tensor codesT = part(name, "codes");
         int[] shape = codesT.shape();
         float[] codes = TensorAccess.data(codesT);
-        float[] scales = TensorAccess.data(part(name, "scales"));
-        int[] ss = part(name, "scales").shape();
+        Tensor scalesT = part(name, "scales");
+        float[] scales = TensorAccess.data(scalesT);
+        int[] ss = scalesT.shape();
         if (ss.length != shape.length) {
             throw refuse(name, "scales of rank " + ss.length + " for a tensor of rank " + shape.length);
         }
