@@ -1,7 +1,10 @@
 package dev.rungbook.cli;
 
+import dev.rungbook.install.KernelSpec;
 import dev.rungbook.io.Checkpoint;
 import dev.rungbook.metrics.TensorStats;
+import dev.rungbook.runner.JupyterExecution;
+import dev.rungbook.runner.NotebookRunner;
 import dev.rungbook.tensor.Tensor;
 import java.io.IOException;
 import java.io.PrintStream;
@@ -10,6 +13,7 @@ import java.nio.file.Path;
 import java.util.Arrays;
 import java.util.List;
 import java.util.Locale;
+import java.util.Optional;
 import java.util.concurrent.Callable;
 import java.util.stream.Collectors;
 import java.util.stream.Stream;
@@ -18,8 +22,9 @@ import picocli.CommandLine.Option;
 
 /** {@code rungbook demo}: opens every sample checkpoint and prints a summary of each tensor. */
 @Command(name = "demo", mixinStandardHelpOptions = true,
-        description = {"Run the demo on the embedded sample checkpoints: inspect every sample tensor, then execute",
-            "notebooks 01 and 02 headless (embedded runner, no Jupyter needed) and write HTML reports.",
+        description = {"Run the demo on the embedded sample checkpoints: inspect every sample tensor, install the",
+            "kernel for the user, then execute notebooks 01 and 02 headless and write HTML reports: through Jupyter",
+            "(nbclient) when Python has it, else with the embedded runner (no Jupyter needed).",
             "Run it from the repository root: the notebooks read sample-tensors/ from there."})
 final class DemoCommand implements Callable<Integer> {
     @Option(names = "--samples", description = "Folder of sample checkpoints (default: ${DEFAULT-VALUE}).",
@@ -38,6 +43,13 @@ final class DemoCommand implements Callable<Integer> {
     @Option(names = "--no-notebooks", description = "Only inspect the sample tensors.")
     boolean noNotebooks;
 
+    @Option(names = "--embedded", description = "Execute with the embedded runner even when Jupyter is present.")
+    boolean embedded;
+
+    @Option(names = "--kernel-prefix", paramLabel = "DIR",
+            description = "Install the kernel spec under DIR/share/jupyter/kernels instead of the user's folder.")
+    Path kernelPrefix;
+
     /** The notebooks the demo executes. */
     static final List<String> DEMO_NOTEBOOKS = List.of("01-first-look.ipynb", "02-granularity-and-range.ipynb");
 
@@ -47,11 +59,56 @@ final class DemoCommand implements Callable<Integer> {
         if (code != 0 || noNotebooks) {
             return code;
         }
-        return runNotebooks(notebooks, out, System.out, System.err);
+        RunCommand.Executor executor = null;
+        if (!embedded) {
+            executor = jupyter(kernelPrefix, System.out, System.err);
+        }
+        if (executor == null) {
+            System.out.println();
+            System.out.println("Executing with the embedded runner (no Jupyter needed) ...");
+            executor = NotebookRunner.create()::execute;
+        }
+        return runNotebooks(notebooks, out, executor, System.out, System.err);
+    }
+
+    /**
+     * Installs the kernel (for the user, or under {@code prefix}) and returns an executor that runs notebooks through
+     * Jupyter, or null when Python lacks nbclient or the kernel cannot be installed (then the embedded runner is used).
+     */
+    static RunCommand.Executor jupyter(Path prefix, PrintStream out, PrintStream err) {
+        Path kernels = prefix == null ? KernelSpec.userKernelsDir() : KernelSpec.prefixKernelsDir(prefix);
+        out.println();
+        try {
+            Path dir = KernelSpec.installWithClassArchive(kernels, List.of(), m -> err.println("rungbook demo: " + m));
+            out.println("Installed the Jupyter kernel \"" + KernelSpec.DISPLAY_NAME + "\" in " + dir.toAbsolutePath());
+        } catch (IOException | RuntimeException e) {
+            err.println("rungbook demo: cannot install the kernel in " + kernels + " (" + e + ")");
+            return null;
+        }
+        Optional<JupyterExecution> jupyter = JupyterExecution.find(prefix == null ? null
+                : prefix.resolve("share").resolve("jupyter"));
+        if (jupyter.isEmpty()) {
+            out.println("No Python with nbclient and nbformat found (" + String.join(", ", JupyterExecution.PYTHONS)
+                    + "): using the embedded runner.");
+            return null;
+        }
+        out.println("Executing through Jupyter (" + jupyter.get().python() + " with nbclient, kernel "
+                + KernelSpec.NAME + ") ...");
+        Path workDir = Path.of("").toAbsolutePath();
+        return nb -> {
+            try {
+                return jupyter.get().execute(nb, workDir);
+            } catch (IOException e) {
+                err.println("rungbook demo: " + e.getMessage());
+                err.println("rungbook demo: running " + nb.getFileName() + " with the embedded runner instead");
+                return NotebookRunner.create().execute(nb);
+            }
+        };
     }
 
     /** Executes the demo notebooks of {@code folder}, writing notebooks and reports to {@code outDir}. */
-    static int runNotebooks(Path folder, Path outDir, PrintStream out, PrintStream err) throws Exception {
+    static int runNotebooks(Path folder, Path outDir, RunCommand.Executor executor, PrintStream out, PrintStream err)
+            throws Exception {
         List<Path> files = DEMO_NOTEBOOKS.stream().map(folder::resolve).collect(Collectors.toList());
         for (Path f : files) {
             if (!Files.isRegularFile(f)) {
@@ -59,9 +116,7 @@ final class DemoCommand implements Callable<Integer> {
                 return 1;
             }
         }
-        out.println();
-        out.println("Executing " + files.size() + " notebooks headless with the embedded runner ...");
-        int code = RunCommand.run(files, outDir, true, false, out, err);
+        int code = RunCommand.run(files, outDir, true, executor, out, err);
         out.println();
         out.println("HTML reports (open in a browser):");
         for (Path f : files) {

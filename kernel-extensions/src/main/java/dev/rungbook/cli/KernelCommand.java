@@ -14,7 +14,8 @@ import picocli.CommandLine.Parameters;
 /** {@code rungbook kernel install|remove|run}: the Jupyter kernel. */
 @Command(name = "kernel", mixinStandardHelpOptions = true,
         description = "Install, remove or run the Rungbook Jupyter kernel.",
-        subcommands = {KernelCommand.Install.class, KernelCommand.Remove.class, KernelCommand.Run.class})
+        subcommands = {KernelCommand.Install.class, KernelCommand.Remove.class, KernelCommand.Run.class,
+                KernelCommand.WarmUp.class})
 final class KernelCommand implements Callable<Integer> {
     @Override
     public Integer call() {
@@ -51,11 +52,18 @@ final class KernelCommand implements Callable<Integer> {
                 description = "A JVM option for the kernel, e.g. --jvm-opt -Xmx4g (repeatable).")
         List<String> jvmOptions = new ArrayList<>();
 
+        @Option(names = "--no-class-archive",
+                description = "Do not make the class-data archive that speeds up kernel start (a training run of a "
+                        + "few seconds at install time).")
+        boolean noArchive;
+
         @Override
         public Integer call() {
             Path kernels = Place.kernelsDir(place);
             try {
-                Path dir = KernelSpec.install(kernels, KernelSpec.argv(jvmOptions));
+                Path dir = noArchive ? KernelSpec.install(kernels, KernelSpec.argv(jvmOptions))
+                        : KernelSpec.installWithClassArchive(kernels, jvmOptions,
+                                m -> System.err.println("rungbook kernel: " + m));
                 System.out.println("Installed kernel spec " + KernelSpec.NAME + " in " + dir);
                 return 0;
             } catch (java.io.IOException | RuntimeException e) {
@@ -78,6 +86,16 @@ final class KernelCommand implements Callable<Integer> {
             }
             System.err.println("No kernel spec " + KernelSpec.NAME + " in " + dir);
             return 1;
+        }
+    }
+
+    /** The training run behind the class-data archive: not for users, so hidden from the help. */
+    @Command(name = "warm-up", hidden = true, description = "Run typical first cells once and exit.")
+    static final class WarmUp implements Callable<Integer> {
+        @Override
+        public Integer call() {
+            System.out.println("warm-up: " + dev.rungbook.kernel.KernelServer.warmUp() + " cells");
+            return 0;
         }
     }
 

@@ -45,6 +45,17 @@ final class RunCommand implements Callable<Integer> {
     static int run(List<Path> notebooks, Path outDir, boolean html, boolean continueOnError, PrintStream out,
             PrintStream err) throws Exception {
         NotebookRunner runner = NotebookRunner.create().continueOnError(continueOnError);
+        return run(notebooks, outDir, html, runner::execute, out, err);
+    }
+
+    /** Executes one notebook file. */
+    interface Executor {
+        ExecutedNotebook execute(Path notebook) throws java.io.IOException;
+    }
+
+    /** As {@link #run(List, Path, boolean, boolean, PrintStream, PrintStream)}, executing with {@code runner}. */
+    static int run(List<Path> notebooks, Path outDir, boolean html, Executor runner, PrintStream out,
+            PrintStream err) throws Exception {
         int failed = 0;
         for (Path nb : notebooks) {
             if (!Files.isRegularFile(nb)) {

@@ -99,11 +99,85 @@ public final class KernelSpec {
      * @return the installed folder
      */
     public static Path install(Path kernelsDir, List<String> argv) throws IOException {
+        return install(kernelsDir, (staging, target) -> argv);
+    }
+
+    /**
+     * Like {@link #install(Path, List)} with {@link #argv(List) argv(jvmOptions)}, and, when Rungbook runs from its
+     * jar, also a class-data archive ({@value #CLASS_ARCHIVE}, made by a training run of JShell and the renderers,
+     * {@code -XX:ArchiveClassesAtExit}) that the kernel maps at start ({@code -XX:SharedArchiveFile}) so that it
+     * does not load and verify the compiler's classes again: kernel start is faster. The archive fits only this JDK
+     * and this jar; after either changes, install again (the JVM ignores an archive that does not fit, with a
+     * warning, and starts as it would without one). When the training run fails, the spec is written without the
+     * archive and {@code log} says why.
+     *
+     * @return the installed folder
+     */
+    public static Path installWithClassArchive(Path kernelsDir, List<String> jvmOptions,
+            java.util.function.Consumer<String> log) throws IOException {
+        Path jar = runningJar();
+        if (jar == null) {
+            log.accept("Rungbook runs from class folders, not its jar: no class-data archive");
+            return install(kernelsDir, argv(jvmOptions));
+        }
+        return install(kernelsDir, (staging, target) -> {
+            String made = makeClassArchive(jar, jvmOptions, staging.resolve(CLASS_ARCHIVE));
+            if (made != null) {
+                log.accept("no class-data archive (" + made + "); the kernel starts without one");
+                return argv(jvmOptions);
+            }
+            List<String> options = new ArrayList<>(jvmOptions);
+            options.add("-XX:SharedArchiveFile=" + target.resolve(CLASS_ARCHIVE));
+            return argv(options);
+        });
+    }
+
+    /** File name of the class-data archive in the spec folder. */
+    public static final String CLASS_ARCHIVE = "rungbook-classes.jsa";
+    /** Longest time the training run for the archive may take. */
+    private static final long ARCHIVE_TIMEOUT_SECONDS = 180;
+
+    /** Runs the training JVM; returns null when {@code archive} was written, else the reason it was not. */
+    private static String makeClassArchive(Path jar, List<String> jvmOptions, Path archive) throws IOException {
+        List<String> cmd = new ArrayList<>();
+        cmd.add(Path.of(System.getProperty("java.home"), "bin", isWindows() ? "java.exe" : "java").toString());
+        cmd.addAll(jvmOptions);
+        cmd.add("-XX:ArchiveClassesAtExit=" + archive);
+        cmd.add("-Djava.awt.headless=true");
+        cmd.addAll(List.of("-jar", jar.toString(), "kernel", "warm-up"));
+        Path log = Files.createTempFile(archive.getParent(), "warm-up", ".log");
+        try {
+            Process p = new ProcessBuilder(cmd).redirectErrorStream(true).redirectOutput(log.toFile()).start();
+            if (!p.waitFor(ARCHIVE_TIMEOUT_SECONDS, java.util.concurrent.TimeUnit.SECONDS)) {
+                p.destroyForcibly();
+                return "the training run took more than " + ARCHIVE_TIMEOUT_SECONDS + " s";
+            }
+            if (p.exitValue() != 0 || !Files.isRegularFile(archive) || Files.size(archive) == 0) {
+                String out = Files.readString(log, StandardCharsets.UTF_8).strip();
+                return "the training run exited with " + p.exitValue()
+                        + (out.isEmpty() ? "" : ": " + out.substring(Math.max(0, out.length() - 400)));
+            }
+            return null;
+        } catch (InterruptedException e) {
+            Thread.currentThread().interrupt();
+            return "interrupted";
+        } finally {
+            Files.deleteIfExists(log);
+        }
+    }
+
+    /** Makes the command line of a spec, given its staging folder and the folder it will be renamed to. */
+    private interface ArgvMaker {
+        List<String> make(Path staging, Path target) throws IOException;
+    }
+
+    private static Path install(Path kernelsDir, ArgvMaker argv) throws IOException {
         Files.createDirectories(kernelsDir);
         Path target = kernelsDir.resolve(NAME);
         Path staging = Files.createTempDirectory(kernelsDir, "." + NAME + "-new-");
         try {
-            Files.writeString(staging.resolve("kernel.json"), kernelJson(argv), StandardCharsets.UTF_8);
+            List<String> command = argv.make(staging, target.toAbsolutePath());
+            Files.writeString(staging.resolve("kernel.json"), kernelJson(command), StandardCharsets.UTF_8);
             Files.write(staging.resolve("logo-32x32.png"), Logo.png(32));
             Files.write(staging.resolve("logo-64x64.png"), Logo.png(64));
             Path old = null;

@@ -68,6 +68,37 @@ public final class KernelServer {
         return 0;
     }
 
+    /** Cells of the training run behind the kernel's class-data archive: what a first session typically does. */
+    static final java.util.List<String> WARM_UP_CELLS = java.util.List.of(
+            "1 + 1",
+            "String s = \"warm\"; s.length()",
+            "var t = Table.create(\"t\", DoubleColumn.create(\"x\", new double[] {1, 2, 3}));\nt",
+            "var w = Tensor.of(new float[] {-1f, 0.5f, 2f, 0.25f}, 2, 2);\n"
+                    + "var q = Quantizer.linear(8).apply(w);\nq.error()",
+            "var c = new XYChartBuilder().width(600).height(400).build();\n"
+                    + "c.addSeries(\"s\", new double[] {0, 1}, new double[] {1, 0});\nc");
+
+    /**
+     * Evaluates {@link #WARM_UP_CELLS} in a fresh session and renders their values, then returns: the training run
+     * for the class-data archive ({@code rungbook kernel warm-up}). Fails if a cell fails, so that a broken archive run
+     * is noticed.
+     *
+     * @return the number of cells run
+     */
+    public static int warmUp() {
+        CellEvaluator ev = CellEvaluator.create(System.getProperty("java.class.path"),
+                StartupScript.imports(KernelServer.class.getClassLoader()), null);
+        int n = 0;
+        for (String cell : WARM_UP_CELLS) {
+            CellResult r = ev.eval(cell, ++n);
+            if (!(r instanceof CellResult.Success s)) {
+                throw new IllegalStateException("warm-up cell " + n + " failed: " + r);
+            }
+            dev.rungbook.render.Notebook.renderers().render(s.value().orElse(null));
+        }
+        return n;
+    }
+
     /**
      * Ends the kernel when the process that started it ({@code $JPY_PARENT_PID}, set by Jupyter's kernel manager)
      * has gone, so that a crashed client leaves no orphan kernel behind.
