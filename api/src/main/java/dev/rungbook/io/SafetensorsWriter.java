@@ -28,20 +28,20 @@ final class SafetensorsWriter {
     }
 
     static byte[] header(SortedMap<String, Tensor> tensors, Map<String, String> metadata) {
-        List<StreamingWriter.Slot> slots = new ArrayList<>();
+        List<TensorInfo> slots = new ArrayList<>();
         for (Map.Entry<String, Tensor> e : tensors.entrySet()) {
             int[] shape = e.getValue().shape();
             long[] ls = new long[shape.length];
             for (int k = 0; k < shape.length; k++) {
                 ls[k] = shape[k];
             }
-            slots.add(StreamingWriter.Slot.of(e.getKey(), e.getValue().dtype(), ls));
+            slots.add(TensorInfo.of(e.getKey(), e.getValue().dtype(), ls));
         }
         return header(slots, metadata);
     }
 
     /** The header for tensors laid out contiguously in the order of {@code slots}. */
-    static byte[] header(List<StreamingWriter.Slot> slots, Map<String, String> metadata) {
+    static byte[] header(List<TensorInfo> slots, Map<String, String> metadata) {
         JsonObject root = new JsonObject();
         if (!metadata.isEmpty()) {
             JsonObject m = new JsonObject();
@@ -49,7 +49,7 @@ final class SafetensorsWriter {
             root.add(SafetensorsReader.METADATA_KEY, m);
         }
         long offset = 0;
-        for (StreamingWriter.Slot slot : slots) {
+        for (TensorInfo slot : slots) {
             JsonObject o = new JsonObject();
             o.addProperty("dtype", slot.dtype().safetensorsName());
             JsonArray shape = new JsonArray();

@@ -18,11 +18,11 @@ import java.util.Set;
 
 /**
  * Writes a safetensors file one tensor at a time, so that a checkpoint larger than memory can be converted: the
- * tensors are declared first ({@link Slot}: name, dtype, shape), the header is written from them, and then a
+ * tensors are declared first ({@link TensorInfo#of}: name, dtype, shape), the header is written from them, and then a
  * {@link Producer} hands over each tensor's values in the declared order, which are written and can be forgotten.
  *
  * <pre>{@code
- * StreamingWriter.write(out, List.of(Slot.of("w.codes", DType.I8, 4, 8), Slot.of("w.scales", DType.F32, 4, 1)),
+ * StreamingWriter.write(out, List.of(TensorInfo.of("w.codes", DType.I8, 4, 8), TensorInfo.of("w.scales", DType.F32, 4, 1)),
  *         Map.of("note", "example"), sink -> {
  *             sink.put("w.codes", littleEndianBytes);   // exactly 32 bytes
  *             sink.put("w.scales", scales);             // a Tensor of shape [4, 1], encoded as F32
@@ -37,74 +37,6 @@ import java.util.Set;
  */
 public final class StreamingWriter {
     private StreamingWriter() {
-    }
-
-    /** One declared tensor: name, dtype and shape. Immutable. */
-    public static final class Slot {
-        private final String name;
-        private final DType dtype;
-        private final long[] shape;
-
-        private Slot(String name, DType dtype, long[] shape) {
-            this.name = name;
-            this.dtype = dtype;
-            this.shape = shape;
-        }
-
-        /**
-         * A slot.
-         *
-         * @throws IllegalArgumentException for a negative dimension or a size over {@code Long.MAX_VALUE} bytes
-         */
-        public static Slot of(String name, DType dtype, long... shape) {
-            Objects.requireNonNull(name, "name");
-            Objects.requireNonNull(dtype, "dtype");
-            long[] s = shape.clone();
-            long count = 1;
-            for (long d : s) {
-                if (d < 0) {
-                    throw new IllegalArgumentException("tensor '" + name + "': negative dimension in shape "
-                            + Arrays.toString(s));
-                }
-                count = Math.multiplyExact(count, d);
-            }
-            Math.multiplyExact(count, (long) dtype.byteSize());
-            return new Slot(name, dtype, s);
-        }
-
-        /** The tensor name. */
-        public String name() {
-            return name;
-        }
-
-        /** The dtype written. */
-        public DType dtype() {
-            return dtype;
-        }
-
-        /** The shape (a copy). */
-        public long[] shape() {
-            return shape.clone();
-        }
-
-        /** The number of elements. */
-        public long elementCount() {
-            long c = 1;
-            for (long d : shape) {
-                c *= d;
-            }
-            return c;
-        }
-
-        /** The number of data bytes. */
-        public long byteSize() {
-            return elementCount() * dtype.byteSize();
-        }
-
-        @Override
-        public String toString() {
-            return name + " " + dtype + " " + Arrays.toString(shape);
-        }
     }
 
     /** Hands the declared tensors over to a {@link Sink}, in order. */
@@ -134,7 +66,7 @@ public final class StreamingWriter {
      * @throws IllegalStateException if {@code file} is open as a checkpoint input, or the producer left slots unwritten
      * @throws UncheckedIOException if writing fails
      */
-    public static void write(Path file, List<Slot> slots, Map<String, String> metadata, Producer producer) {
+    public static void write(Path file, List<TensorInfo> slots, Map<String, String> metadata, Producer producer) {
         Objects.requireNonNull(file, "file");
         Objects.requireNonNull(slots, "slots");
         Objects.requireNonNull(producer, "producer");
@@ -143,13 +75,13 @@ public final class StreamingWriter {
             throw new IllegalArgumentException(file + ": a streamed checkpoint is written as .safetensors");
         }
         Set<String> names = new HashSet<>();
-        for (Slot s : slots) {
+        for (TensorInfo s : slots) {
             Objects.requireNonNull(s, "slot");
-            if (s.name.equals(SafetensorsReader.METADATA_KEY)) {
-                throw new IllegalArgumentException(file + ": tensor name '" + s.name + "' is reserved for metadata");
+            if (s.name().equals(SafetensorsReader.METADATA_KEY)) {
+                throw new IllegalArgumentException(file + ": tensor name '" + s.name() + "' is reserved for metadata");
             }
-            if (!names.add(s.name)) {
-                throw new IllegalArgumentException(file + ": tensor '" + s.name + "' is declared twice");
+            if (!names.add(s.name())) {
+                throw new IllegalArgumentException(file + ": tensor '" + s.name() + "' is declared twice");
             }
         }
         meta.forEach((k, v) -> {
@@ -168,7 +100,7 @@ public final class StreamingWriter {
                 producer.produce(sink);
                 if (sink.next != slots.size()) {
                     throw new IllegalStateException(file + ": " + sink.next + " of " + slots.size()
-                            + " declared tensors were written; next missing: '" + slots.get(sink.next).name + "'");
+                            + " declared tensors were written; next missing: '" + slots.get(sink.next).name() + "'");
                 }
             });
         } catch (IOException e) {
@@ -180,23 +112,23 @@ public final class StreamingWriter {
     private static final class ChannelSink implements Sink {
         private final Path file;
         private final FileChannel ch;
-        private final List<Slot> slots;
+        private final List<TensorInfo> slots;
         int next;
 
-        ChannelSink(Path file, FileChannel ch, List<Slot> slots) {
+        ChannelSink(Path file, FileChannel ch, List<TensorInfo> slots) {
             this.file = file;
             this.ch = ch;
             this.slots = slots;
         }
 
-        private Slot expect(String name) {
+        private TensorInfo expect(String name) {
             if (next >= slots.size()) {
                 throw new IllegalArgumentException(file + ": tensor '" + name + "' handed over after all "
                         + slots.size() + " declared tensors were written");
             }
-            Slot s = slots.get(next);
-            if (!s.name.equals(name)) {
-                throw new IllegalArgumentException(file + ": tensor '" + name + "' handed over where '" + s.name
+            TensorInfo s = slots.get(next);
+            if (!s.name().equals(name)) {
+                throw new IllegalArgumentException(file + ": tensor '" + name + "' handed over where '" + s.name()
                         + "' was declared next");
             }
             return s;
@@ -204,18 +136,18 @@ public final class StreamingWriter {
 
         @Override
         public void put(String name, Tensor values) {
-            Slot s = expect(name);
+            TensorInfo s = expect(name);
             int[] shape = values.shape();
             long[] ls = new long[shape.length];
             for (int k = 0; k < shape.length; k++) {
                 ls[k] = shape[k];
             }
-            if (!Arrays.equals(ls, s.shape)) {
+            if (!Arrays.equals(ls, s.shape())) {
                 throw new IllegalArgumentException(file + ": tensor '" + name + "' has shape "
-                        + Arrays.toString(shape) + ", declared " + Arrays.toString(s.shape));
+                        + Arrays.toString(shape) + ", declared " + Arrays.toString(s.shape()));
             }
             try {
-                Encode.encode(file, name, values.withDType(s.dtype), piece -> SafetensorsWriter.writeAll(ch, piece));
+                Encode.encode(file, name, values.withDType(s.dtype()), piece -> SafetensorsWriter.writeAll(ch, piece));
             } catch (IOException e) {
                 throw new UncheckedIOException(file + ": could not write tensor '" + name + "': " + e.getMessage(), e);
             }
@@ -224,7 +156,7 @@ public final class StreamingWriter {
 
         @Override
         public void put(String name, ByteBuffer bytes) {
-            Slot s = expect(name);
+            TensorInfo s = expect(name);
             if (bytes.remaining() != s.byteSize()) {
                 throw new IllegalArgumentException(file + ": tensor '" + name + "' handed over " + bytes.remaining()
                         + " bytes, declared " + s.byteSize() + " (" + s + ")");

@@ -419,7 +419,7 @@ public final class Export {
     private static void writeItems(Path out, List<Item> items, Map<String, String> meta, boolean dequantized,
             Progress progress, Consumer<Quantized> each) {
         meta.put(PREFIX + "export", dequantized ? DEQUANTIZED_FORMAT : QUANTIZED_FORMAT);
-        List<StreamingWriter.Slot> slots = new ArrayList<>();
+        List<TensorInfo> slots = new ArrayList<>();
         Map<String, String> owner = new HashMap<>();
         List<Layout> layouts = new ArrayList<>();
         for (Item it : items) {
@@ -473,14 +473,14 @@ public final class Export {
         progress.finish(task);
     }
 
-    private static void declare(Path out, List<StreamingWriter.Slot> slots, Map<String, String> owner, String source,
+    private static void declare(Path out, List<TensorInfo> slots, Map<String, String> owner, String source,
             String name, DType dtype, long[] shape) {
         String prev = owner.putIfAbsent(name, source);
         if (prev != null) {
             throw new IllegalArgumentException(out + ": output tensor '" + name + "' would be written for both '"
                     + prev + "' and '" + source + "'; rename one of them, or keep the other unquantized");
         }
-        slots.add(StreamingWriter.Slot.of(name, dtype, shape));
+        slots.add(TensorInfo.of(name, dtype, shape));
     }
 
     private static void putQuantized(Path out, StreamingWriter.Sink sink, String name, Quantized r, Layout l) {

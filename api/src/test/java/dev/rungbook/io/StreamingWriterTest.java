@@ -18,8 +18,8 @@ import java.util.Map;
 import org.junit.jupiter.api.Test;
 
 class StreamingWriterTest {
-    private static final List<StreamingWriter.Slot> SLOTS = List.of(StreamingWriter.Slot.of("b", DType.U16, 3),
-            StreamingWriter.Slot.of("a", DType.BF16, 2, 2));
+    private static final List<TensorInfo> SLOTS = List.of(TensorInfo.of("b", DType.U16, 3),
+            TensorInfo.of("a", DType.BF16, 2, 2));
 
     private static ByteBuffer u16(int... v) {
         ByteBuffer b = ByteBuffer.allocate(2 * v.length).order(ByteOrder.LITTLE_ENDIAN);

@@ -16,6 +16,7 @@ import java.util.Locale;
 import java.util.concurrent.Callable;
 import org.knowm.xchart.internal.chartpart.IChart;
 import picocli.CommandLine.Command;
+import picocli.CommandLine.Mixin;
 import picocli.CommandLine.Model.CommandSpec;
 import picocli.CommandLine.Option;
 import picocli.CommandLine.ParameterException;
@@ -34,8 +35,7 @@ import tech.tablesaw.api.Table;
             + "is documented in dev.rungbook.quant.Export), or with --dequantized the float32 values the codes stand "
             + "for. Tensors not selected by --tensors are copied unchanged. Tensors are read, quantized and written "
             + "one at a time.",
-            "Exit codes: 0 ok, 1 failure (unreadable file, a spec that does not fit a tensor), 2 usage error "
-            + "(including a bad spec, whose message names the bad token and its column)."})
+            SpecConverter.EXIT_CODES})
 final class QuantizeCommand implements Callable<Integer> {
     @Spec
     CommandSpec spec;
@@ -47,9 +47,8 @@ final class QuantizeCommand implements Callable<Integer> {
             description = SpecConverter.HELP)
     Quantizer quantizer;
 
-    @Option(names = "--tensors", paramLabel = "GLOB", description = {"Quantize only tensors whose names match (* any "
-        + "run of characters, ? one character); repeatable. Default: every tensor."})
-    List<String> tensors = new ArrayList<>();
+    @Mixin
+    TensorSelection selection;
 
     @Option(names = "--out", required = true, paramLabel = "OUT", description = "The .safetensors file to write "
             + "(never the input).")
@@ -85,7 +84,7 @@ final class QuantizeCommand implements Callable<Integer> {
         }
         try (Checkpoint c = Checkpoint.open(file)) {
             Export e = Export.of(c);
-            List<String> globs = tensors.isEmpty() ? List.of("*") : tensors;
+            List<String> globs = selection.globsOrAll();
             for (String g : globs) {
                 e = e.spec(g, quantizer);
             }

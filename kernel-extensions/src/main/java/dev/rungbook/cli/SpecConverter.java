@@ -15,6 +15,10 @@ final class SpecConverter implements ITypeConverter<Quantizer> {
             + "\"int8\", \"nf4\", \"fp8-e4m3 per-tensor\", \"uint8 asym per-tensor p99.9\" (grammar: "
             + "dev.rungbook.quant.SpecText).";
 
+    /** The exit-code paragraph of the commands that take specs. */
+    static final String EXIT_CODES = "Exit codes: 0 ok, 1 failure (unreadable file, a spec that does not fit a tensor), "
+            + "2 usage error (including a bad spec, whose message names the bad token and its column).";
+
     @Override
     public Quantizer convert(String value) {
         try {

@@ -2,7 +2,6 @@ package dev.rungbook.cli;
 
 import dev.rungbook.io.Checkpoint;
 import dev.rungbook.io.TensorInfo;
-import dev.rungbook.quant.Export;
 import dev.rungbook.quant.Quantizer;
 import dev.rungbook.study.Study;
 import java.io.PrintWriter;
@@ -14,9 +13,9 @@ import java.util.HashSet;
 import java.util.List;
 import java.util.Set;
 import java.util.concurrent.Callable;
-import java.util.regex.Pattern;
 import org.knowm.xchart.internal.chartpart.IChart;
 import picocli.CommandLine.Command;
+import picocli.CommandLine.Mixin;
 import picocli.CommandLine.Model.CommandSpec;
 import picocli.CommandLine.Option;
 import picocli.CommandLine.ParameterException;
@@ -30,8 +29,7 @@ import tech.tablesaw.api.Table;
             + "metrics (MSE, SQNR, cosine, ...) per tensor and spec, and a summary per spec. Each tensor is read once "
             + "(memory-mapped) for all specs and dropped before the next, so a checkpoint larger than memory can be "
             + "studied.",
-            "Exit codes: 0 ok, 1 failure (unreadable file, a spec that does not fit a tensor), 2 usage error "
-            + "(including a bad spec, whose message names the bad token and its column)."})
+            SpecConverter.EXIT_CODES})
 final class StudyCommand implements Callable<Integer> {
     @Spec
     CommandSpec spec;
@@ -43,9 +41,8 @@ final class StudyCommand implements Callable<Integer> {
             description = {SpecConverter.HELP, "Repeat for each spec to compare."})
     List<Quantizer> specs;
 
-    @Option(names = "--tensors", paramLabel = "GLOB", description = {"Study only tensors whose names match (* any run "
-        + "of characters, ? one character); repeatable. Default: every tensor."})
-    List<String> tensors = new ArrayList<>();
+    @Mixin
+    TensorSelection selection;
 
     @Option(names = "--report", paramLabel = "REPORT", description = "Also write a report: .html (tables and charts "
             + "embedded), .json or .csv (one row per tensor and spec), by extension.")
@@ -85,17 +82,14 @@ final class StudyCommand implements Callable<Integer> {
             throw new IllegalArgumentException("no checkpoint file at " + file.toAbsolutePath());
         }
         try (Checkpoint c = Checkpoint.open(file)) {
-            List<Pattern> globs = new ArrayList<>();
-            for (String g : tensors.isEmpty() ? List.of("*") : tensors) {
-                globs.add(Export.glob(g));
-            }
             Study s = Study.of(c);
-            if (!tensors.isEmpty()) {
-                if (c.names().stream().noneMatch(n -> globs.stream().anyMatch(p -> p.matcher(n).matches()))) {
-                    throw new IllegalArgumentException(file + ": no tensor matches --tensors " + tensors + "; names: "
-                            + QuantizeCommand.preview(c.names()));
+            if (!selection.globs.isEmpty()) {
+                java.util.function.Predicate<String> keep = selection.matcher();
+                if (c.names().stream().noneMatch(keep)) {
+                    throw new IllegalArgumentException(file + ": no tensor matches --tensors " + selection.globs
+                            + "; names: " + QuantizeCommand.preview(c.names()));
                 }
-                s = s.filter(n -> globs.stream().anyMatch(p -> p.matcher(n).matches()));
+                s = s.filter(keep);
             }
             List<String> skipped = new ArrayList<>();
             for (String n : s.tensorNames()) {
