@@ -349,6 +349,41 @@ class ExportTest {
     }
 
     @Test
+    void malformedExportsAreRefusedNamingTheTensor() throws IOException {
+        Path dir = Fixtures.tempDir("export-bad");
+        java.util.function.BiFunction<String, Map<String, Tensor>, Path> file = (decode, parts) -> {
+            Path f = dir.resolve(decode + parts.size() + ".safetensors");
+            Checkpoint.write(f, parts, Map.of("rungbook.decode.w", decode));
+            return f;
+        };
+        Tensor codes = Tensor.of(new float[] {0, 1, 2, 3}, 2, 2).withDType(DType.U8);
+        Map<String, Tensor> noScales = Map.of("w.codes", codes);
+        Map<String, Tensor> wrongRank = Map.of("w.codes", codes, "w.scales", Tensor.of(new float[] {1, 1}, 2));
+        Map<String, Tensor> badTable = Map.of("w.codes", codes, "w.scales", Tensor.of(new float[] {1, 1}, 2, 1),
+                "w.levels", Tensor.of(new float[] {0, 1, 2}, 1, 3));
+        Map<String, Tensor> noTable = Map.of("w.codes", codes, "w.scales", Tensor.of(new float[] {1, 1}, 2, 1));
+        String[][] cases = {{"affine", "0", "part 'w.scales' is missing"}, {"affine", "1", "scales of rank 1"},
+            {"table", "2", "code 3 at index 3 is outside the 3-entry level table"},
+            {"table", "3", "decode 'table' without a levels tensor"}, {"cubic", "3", "unknown decode rule 'cubic'"}};
+        List<Map<String, Tensor>> parts = List.of(noScales, wrongRank, badTable, noTable);
+        for (String[] c : cases) {
+            Path f = file.apply(c[0], parts.get(Integer.parseInt(c[1])));
+            try (QuantizedCheckpoint q = QuantizedCheckpoint.open(f)) {
+                assertTrue(q.isQuantized("w"));
+                dev.rungbook.io.CheckpointFormatException e = assertThrows(
+                        dev.rungbook.io.CheckpointFormatException.class, () -> q.dequantized("w"), c[2]);
+                assertTrue(e.getMessage().contains("'w'") && e.getMessage().contains(c[2]), e.getMessage());
+            }
+        }
+        // A plain checkpoint opens with every tensor unquantized.
+        try (QuantizedCheckpoint q = QuantizedCheckpoint.open(file.apply("plain", Map.of("x", codes)))) {
+            assertFalse(q.isQuantized("x"));
+            assertEquals(List.of("x"), q.names());
+            assertThrows(IllegalArgumentException.class, () -> q.codes("x"));
+        }
+    }
+
+    @Test
     void shapeProblemsAreNamedBeforeAnyWork() {
         Quantizer g = Quantizer.parse("int4 per-group(1,16)");
         assertEquals(Optional.of("axis 1 is out of range for shape [3]"), g.shapeProblem(3));
