@@ -34,6 +34,20 @@ public final class Linear implements WeightedLayer {
         this.bias = bias;
     }
 
+    /**
+     * A freshly initialised layer: weights drawn from N(0, 2 / in) (He initialisation, common practice before ReLU)
+     * with a seeded generator, biases zero.
+     */
+    public static Linear initial(String name, int in, int out, long seed) {
+        java.util.Random r = new java.util.Random(seed);
+        float[] w = new float[out * in];
+        double sd = Math.sqrt(2.0 / in);
+        for (int i = 0; i < w.length; i++) {
+            w[i] = (float) (r.nextGaussian() * sd);
+        }
+        return new Linear(name, Tensor.of(w, out, in), Tensor.of(new float[out], out));
+    }
+
     @Override
     public String name() {
         return name;
