@@ -39,13 +39,18 @@ public final class Linear implements WeightedLayer {
      * with a seeded generator, biases zero.
      */
     public static Linear initial(String name, int in, int out, long seed) {
-        java.util.Random r = new java.util.Random(seed);
-        float[] w = new float[out * in];
-        double sd = Math.sqrt(2.0 / in);
-        for (int i = 0; i < w.length; i++) {
+        float[] w = heNormal(new java.util.Random(seed), out * in, in);
+        return new Linear(name, Tensor.of(w, out, in), Tensor.of(new float[out], out));
+    }
+
+    /** {@code n} values drawn in order from N(0, 2 / fanIn) (He initialisation) with {@code r}. */
+    static float[] heNormal(java.util.Random r, int n, int fanIn) {
+        float[] w = new float[n];
+        double sd = Math.sqrt(2.0 / fanIn);
+        for (int i = 0; i < n; i++) {
             w[i] = (float) (r.nextGaussian() * sd);
         }
-        return new Linear(name, Tensor.of(w, out, in), Tensor.of(new float[out], out));
+        return w;
     }
 
     @Override

@@ -204,11 +204,7 @@ public final class Trainer {
         for (int i = 0; i + 1 < widths.length; i++) {
             int in = widths[i];
             int out = widths[i + 1];
-            float[] w = new float[out * in];
-            double sd = Math.sqrt(2.0 / in);
-            for (int j = 0; j < w.length; j++) {
-                w[j] = (float) (r.nextGaussian() * sd);
-            }
+            float[] w = Linear.heNormal(r, out * in, in);
             layers.add(new Linear("fc" + (i + 1), Tensor.of(w, out, in), Tensor.of(new float[out], out)));
             if (i + 2 < widths.length) {
                 layers.add(new Relu("relu" + (i + 1)));
