@@ -181,6 +181,7 @@ public final class Trainer {
      * {@code 1 / sqrt(N Qp)}.
      *
      * @param bits code width, 2 to 16
+     * @param perChannel one step per output channel (axis 0) instead of one per tensor
      */
     public Trainer learnedStepSize(int bits, boolean perChannel) {
         if (bits < 2 || bits > 16) {

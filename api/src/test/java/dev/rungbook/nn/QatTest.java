@@ -92,7 +92,8 @@ class QatTest {
         Network net = Trainer.initialMlp(3, 6, 8, 5, 3);
         Tensor x = LayersTest.random(4, 7, 6);
         Quantizer q = Quantizer.linear(3).perTensor();
-        List<Node> nodes = gradients(net, l -> new FakeQuantization(q, l.name() + ".weight", l.weight().shape()), x, LABELS);
+        List<Node> nodes = gradients(net, l -> new FakeQuantization(q, l.name() + ".weight", l.weight().shape()), x,
+                LABELS);
         List<WeightedNode> wn = new ArrayList<>();
         nodes.forEach(n -> {
             if (n instanceof WeightedNode) {
