@@ -130,7 +130,11 @@ public final class Network {
 
     /** The index of the largest output per sample. */
     public int[] predict(Tensor batch) {
-        Tensor logits = forward(batch);
+        return topClass(forward(batch));
+    }
+
+    /** The index of the largest value in each row of logits shaped {@code [N, classes]} (the first on ties). */
+    public static int[] topClass(Tensor logits) {
         int n = logits.dim(0);
         int k = logits.dim(1);
         float[] z = TensorAccess.data(logits);
