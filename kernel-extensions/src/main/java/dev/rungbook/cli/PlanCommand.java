@@ -41,7 +41,8 @@ import picocli.CommandLine.Spec;
                 + "--layers). Other architectures are not read from checkpoints yet.",
             "Exit codes: 0 ok, 2 usage error, 1 failure."},
         footer = {"", "Example:", "  rungbook plan sample-tensors/conveyor-mlp.f32.safetensors --budget 40KiB \\",
-            "      --data sample-tensors/conveyor-validation.npz --candidates int8 int4 int3 --out plan.json"})
+            "      --data sample-tensors/conveyor-validation.npz \\",
+            "      --candidates int8 int4 'g24=int4 per-group(1,24)' --out plan.json"})
 final class PlanCommand implements Callable<Integer> {
     @Spec
     CommandSpec spec;
