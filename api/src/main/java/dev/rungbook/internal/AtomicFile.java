@@ -17,9 +17,11 @@ import java.util.concurrent.ThreadLocalRandom;
 /**
  * Writes a file atomically: the content goes to a new temporary file in the target's folder, which is forced to disk
  * and then renamed over the target in one step ({@code ATOMIC_MOVE}). Readers see the old file or the new one, never a
- * half-written one; on any failure the temporary file is deleted and the target is untouched. A replaced file keeps its
- * permissions; a new one gets {@code rw-r--r--} (where the file system has POSIX permissions). Every Rungbook writer
- * (checkpoints, charts, reports, notebooks) goes through here. Internal.
+ * half-written one; on any failure the temporary file is deleted and the target is untouched. A writer killed outright
+ * (SIGKILL, power loss) cannot delete it: the trace is a file {@code .<target name>.<random hex>.tmp} beside the
+ * target, never read as the target, safe to delete (WriterKillTest). A replaced file keeps its permissions; a new one
+ * gets {@code rw-r--r--} (where the file system has POSIX permissions). Every Rungbook writer (checkpoints, charts,
+ * reports, notebooks) goes through here. Internal.
  */
 public final class AtomicFile {
     private AtomicFile() {

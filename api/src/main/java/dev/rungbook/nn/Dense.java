@@ -54,6 +54,11 @@ final class Dense {
     /** {@code c[n x m] = a[n x k] * b[k x m]}, row-major; {@code c} is overwritten. */
     static void matmul(float[] a, float[] b, float[] c, int n, int k, int m) {
         java.util.Arrays.fill(c, 0, n * m, 0f);
+        addMatmul(a, b, c, n, k, m);
+    }
+
+    /** {@code c[n x m] += a[n x k] * b[k x m]}, row-major. */
+    static void addMatmul(float[] a, float[] b, float[] c, int n, int k, int m) {
         for (int i = 0; i < n; i++) {
             int ai = i * k;
             int ci = i * m;

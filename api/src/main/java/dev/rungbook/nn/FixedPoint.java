@@ -76,6 +76,29 @@ public final class FixedPoint {
     }
 
     /**
+     * {@code acc * M} with one rounding instead of two: the 64-bit product {@code acc * M0} shifted right by
+     * {@code 31 + n} with rounding to nearest, ties away from zero, saturated to int32. Integer operations only; the
+     * result is {@code acc * M0q * 2^-(31+n)} rounded once, so it differs from {@code acc * M} rounded to nearest
+     * only through the Q31 rounding of {@code M0} (relative error below 2^-31), where {@link #apply} can be one off
+     * whenever {@code n} is small (its first rounding is to a step of {@code 2^-n} of the result).
+     */
+    public int applySingleRounding(int accumulator) {
+        int k = 31 + shift;
+        long ab = (long) accumulator * multiplier;
+        if (k > 62) {
+            return 0; // |ab| < 2^62, so |ab / 2^k| < 1/2
+        }
+        long r;
+        if (k == 0) {
+            r = ab;
+        } else {
+            long half = 1L << (k - 1);
+            r = ab >= 0 ? (ab + half) >> k : -((half - ab) >> k);
+        }
+        return (int) Math.max(Integer.MIN_VALUE, Math.min(Integer.MAX_VALUE, r));
+    }
+
+    /**
      * The high 32 bits of {@code 2 * a * b}, rounded: a nudge of 2^30 (non-negative product) or {@code 1 - 2^30}
      * (negative) is added to {@code a * b} before dividing by 2^31 with truncation. Only
      * {@code INT32_MIN * INT32_MIN} saturates, to {@code INT32_MAX}.

@@ -1,6 +1,9 @@
 package dev.rungbook.nn;
 
 import dev.rungbook.internal.TensorAccess;
+import dev.rungbook.quant.Quantizer;
+import dev.rungbook.range.RangeRule;
+import dev.rungbook.round.Rounding;
 import dev.rungbook.tensor.DType;
 import dev.rungbook.tensor.Tensor;
 import java.util.ArrayList;
@@ -23,16 +26,78 @@ public final class IntegerNetwork {
     private final int inputZeroPoint;
     private final int bits;
 
-    /** One linear layer in integer form. */
+    private final Requantization requantization;
+
+    /** How an int32 accumulator is scaled to the output grid. */
+    public enum Requantization {
+        /**
+         * The published integer-only rounding: saturating rounding doubling high multiply by {@code M0}, then a
+         * rounding right shift by {@code n} ({@link FixedPoint#apply}). Two roundings: when {@code n} is small
+         * ({@code M} near 1) the first one is to a coarse step and the result is one off {@code round(acc * M)}
+         * more often. The default.
+         */
+        DOUBLE_ROUNDING,
+        /**
+         * One 64-bit product {@code acc * M0} and one rounding shift by {@code 31 + n}
+         * ({@link FixedPoint#applySingleRounding}); still integer-only, and equal to {@code round(acc * M)} up to the
+         * Q31 rounding of {@code M0}.
+         */
+        SINGLE_ROUNDING
+    }
+
+    /** One linear layer in integer form; {@code wide} holds the weight codes as ints for the inner loop. */
     private record IntLayer(String name, int in, int out, byte[] weights, int[] bias, float[] weightScales,
-            FixedPoint[] multipliers, double outputScale, int outputZeroPoint, boolean relu, int weightBits) {
+            FixedPoint[] multipliers, double outputScale, int outputZeroPoint, boolean relu, int weightBits,
+            int[] wide, int[] weightSums) {
+        IntLayer(String name, int in, int out, byte[] weights, int[] bias, float[] weightScales,
+                FixedPoint[] multipliers, double outputScale, int outputZeroPoint, boolean relu, int weightBits) {
+            this(name, in, out, weights, bias, weightScales, multipliers, outputScale, outputZeroPoint, relu,
+                    weightBits, widen(weights), rowSums(weights, out, in));
+        }
+    }
+
+    private static int[] widen(byte[] w) {
+        int[] out = new int[w.length];
+        for (int i = 0; i < w.length; i++) {
+            out[i] = w[i];
+        }
+        return out;
+    }
+
+    private static int[] rowSums(byte[] w, int rows, int cols) {
+        int[] out = new int[rows];
+        for (int r = 0; r < rows; r++) {
+            int sum = 0;
+            for (int j = 0; j < cols; j++) {
+                sum += w[r * cols + j];
+            }
+            out[r] = sum;
+        }
+        return out;
     }
 
     private IntegerNetwork(List<IntLayer> layers, double inputScale, int inputZeroPoint, int bits) {
+        this(layers, inputScale, inputZeroPoint, bits, Requantization.DOUBLE_ROUNDING);
+    }
+
+    private IntegerNetwork(List<IntLayer> layers, double inputScale, int inputZeroPoint, int bits,
+            Requantization requantization) {
         this.layers = layers;
         this.inputScale = inputScale;
         this.inputZeroPoint = inputZeroPoint;
         this.bits = bits;
+        this.requantization = requantization;
+    }
+
+    /** The same network with requantization {@code mode} (default {@link Requantization#DOUBLE_ROUNDING}). */
+    public IntegerNetwork requantization(Requantization mode) {
+        return new IntegerNetwork(layers, inputScale, inputZeroPoint, bits,
+                java.util.Objects.requireNonNull(mode, "mode"));
+    }
+
+    /** The requantization mode. */
+    public Requantization requantization() {
+        return requantization;
     }
 
     /**
@@ -45,8 +110,8 @@ public final class IntegerNetwork {
         if (bits < 2 || bits > 8) {
             throw new IllegalArgumentException("integer network bits must be in [2, 8], got " + bits);
         }
-        Mlp mlp = Mlp.of(net);
         List<Linear> linears = net.linearLayers();
+        boolean[] reluAfter = reluAfter(net);
         int qmax = (1 << bits) - 1;
         double[] inRange = range(TensorAccess.data(calibration));
         double sx = scaleOf(inRange, qmax);
@@ -59,7 +124,7 @@ public final class IntegerNetwork {
         for (int l = 0; l < linears.size(); l++) {
             Linear lin = linears.get(l);
             act = lin.forward(act);
-            boolean relu = mlp.reluAfter[l];
+            boolean relu = reluAfter[l];
             float[] y = TensorAccess.data(act);
             if (relu) {
                 float[] r = new float[y.length];
@@ -75,11 +140,8 @@ public final class IntegerNetwork {
             int in = lin.inFeatures();
             int o = lin.outFeatures();
             float[] w = TensorAccess.data(lin.weight());
-            float[] b = TensorAccess.data(lin.bias());
             byte[] qw = new byte[w.length];
-            int[] qb = new int[o];
             float[] sw = new float[o];
-            FixedPoint[] m = new FixedPoint[o];
             for (int c = 0; c < o; c++) {
                 double amax = 0;
                 for (int j = 0; j < in; j++) {
@@ -90,20 +152,136 @@ public final class IntegerNetwork {
                 for (int j = 0; j < in; j++) {
                     qw[c * in + j] = (byte) Math.max(-wmax, Math.min(wmax, Math.rint(w[c * in + j] / s)));
                 }
-                double accScale = (double) s * sx;
-                double qbias = Math.rint(b[c] / accScale);
-                if (Math.abs(qbias) > Integer.MAX_VALUE) {
-                    throw new IllegalArgumentException(lin.name() + ": bias of channel " + c
-                            + " does not fit int32 at scale " + accScale);
-                }
-                qb[c] = (int) qbias;
-                m[c] = FixedPoint.of(accScale / sy);
             }
-            out.add(new IntLayer(lin.name(), in, o, qw, qb, sw, m, sy, zy, relu, bits));
+            out.add(new IntLayer(lin.name(), in, o, qw, integerBias(lin, sw, sx), sw, multipliers(sw, sx, sy), sy,
+                    zy, relu, bits));
             sx = sy;
             zx = zy;
         }
         return new IntegerNetwork(out, inputScale, inputZp, bits);
+    }
+
+    /** Whether a ReLU follows each linear layer; the network must start with one and hold only linear and ReLU. */
+    private static boolean[] reluAfter(Network net) {
+        boolean[] relu = new boolean[net.linearLayers().size()];
+        int li = -1;
+        for (Layer l : net.layers()) {
+            if (l instanceof Linear) {
+                li++;
+            } else if (l instanceof Relu && li >= 0) {
+                relu[li] = true;
+            } else {
+                throw new IllegalArgumentException("the integer network handles linear and ReLU layers starting "
+                        + "with a linear layer; got " + l);
+            }
+        }
+        return relu;
+    }
+
+    /**
+     * The integer form of a calibrated {@link SimulatedNetwork}, with its grids taken over unchanged: the input's and
+     * every layer output's scale and zero point, each weight's codes (whatever rounding chose them) and per-channel
+     * or per-tensor scales. Bias and multipliers follow as in {@link #of(Network, Tensor, int)}. The two networks then
+     * differ only in integer arithmetic: the bias rounded to the accumulator grid and fixed-point requantization.
+     *
+     * @throws IllegalArgumentException naming the layer if the network is not linear and ReLU layers, or if a grid
+     *     is not one this network runs: activations (input and every layer output) must share one
+     *     {@code Quantizer.linear(b).asymmetric().unsigned().perTensor()} grid ({@code b} in 2..8, nearest rounding,
+     *     any range rule), weights {@code Quantizer.linear(c)} symmetric and signed with {@code c <= b}, per tensor
+     *     or per channel of axis 0 (any range rule, any rounding)
+     */
+    public static IntegerNetwork of(SimulatedNetwork sim) {
+        Network net = sim.reference();
+        boolean[] relu = reluAfter(net);
+        CalibratedActivation in = sim.input().orElseThrow(() -> new IllegalArgumentException(
+                "integer network: the input must be quantized"));
+        int bits = activationBits(in);
+        List<Linear> linears = net.linearLayers();
+        List<IntLayer> out = new ArrayList<>();
+        double sx = in.scale();
+        int zx = (int) in.zeroPoint();
+        for (int l = 0; l < linears.size(); l++) {
+            Linear lin = linears.get(l);
+            String name = lin.name();
+            CalibratedActivation a = sim.output(name).orElseThrow(() -> new IllegalArgumentException(
+                    "integer network: the output of " + name + " must be quantized"));
+            if (activationBits(a) != bits) {
+                throw new IllegalArgumentException("integer network: " + name + " output has "
+                        + activationBits(a) + "-bit activations but the input has " + bits);
+            }
+            dev.rungbook.quant.Quantized qw = sim.weights(name).orElseThrow(() -> new IllegalArgumentException(
+                    "integer network: the weights of " + name + " must be quantized"));
+            int wbits = weightBits(name, qw.spec(), bits);
+            int o = lin.outFeatures();
+            int inF = lin.inFeatures();
+            int[] codes = qw.codes().toIntArray();
+            byte[] qwb = new byte[codes.length];
+            for (int k = 0; k < codes.length; k++) {
+                qwb[k] = (byte) codes[k];
+            }
+            float[] scales = TensorAccess.data(qw.scales());
+            float[] sw = new float[o];
+            for (int c = 0; c < o; c++) {
+                sw[c] = scales.length == 1 ? scales[0] : scales[c];
+            }
+            double sy = a.scale();
+            int zy = (int) a.zeroPoint();
+            out.add(new IntLayer(name, inF, o, qwb, integerBias(lin, sw, sx), sw, multipliers(sw, sx, sy), sy, zy,
+                    relu[l], wbits));
+            sx = sy;
+            zx = zy;
+        }
+        return new IntegerNetwork(out, in.scale(), (int) in.zeroPoint(), bits);
+    }
+
+    private static int activationBits(CalibratedActivation a) {
+        Quantizer q = a.quantizer().range(RangeRule.minMax());
+        for (int b = 2; b <= 8; b++) {
+            if (q.equals(Quantizer.linear(b).asymmetric().unsigned().perTensor())) {
+                return b;
+            }
+        }
+        throw new IllegalArgumentException("integer network: activation at " + a.at() + " is '"
+                + a.quantizer().label() + "'; integer execution needs uint2..uint8 asym per-tensor with nearest "
+                + "rounding");
+    }
+
+    private static int weightBits(String layer, Quantizer spec, int activationBits) {
+        Quantizer q = spec.range(RangeRule.minMax()).rounding(Rounding.nearest());
+        for (int b = 2; b <= activationBits; b++) {
+            Quantizer base = Quantizer.linear(b);
+            if (q.equals(base) || q.equals(base.perTensor()) || q.equals(base.narrowRange())
+                    || q.equals(base.narrowRange().perTensor())) {
+                return b;
+            }
+        }
+        throw new IllegalArgumentException("integer network: weights of " + layer + " are '" + spec.label()
+                + "'; integer execution needs int2..int" + activationBits + " sym, per tensor or per-channel(0)");
+    }
+
+    /** {@code round(b / (S_w S_x))} per output channel. */
+    private static int[] integerBias(Linear lin, float[] sw, double sx) {
+        float[] b = TensorAccess.data(lin.bias());
+        int[] qb = new int[b.length];
+        for (int c = 0; c < b.length; c++) {
+            double accScale = (double) sw[c] * sx;
+            double q = Math.rint(b[c] / accScale);
+            if (Math.abs(q) > Integer.MAX_VALUE) {
+                throw new IllegalArgumentException(lin.name() + ": bias of channel " + c
+                        + " does not fit int32 at scale " + accScale);
+            }
+            qb[c] = (int) q;
+        }
+        return qb;
+    }
+
+    /** {@code M = S_w S_x / S_y} per output channel as fixed-point multipliers. */
+    private static FixedPoint[] multipliers(float[] sw, double sx, double sy) {
+        FixedPoint[] m = new FixedPoint[sw.length];
+        for (int c = 0; c < sw.length; c++) {
+            m[c] = FixedPoint.of((double) sw[c] * sx / sy);
+        }
+        return m;
     }
 
     private static double[] range(float[] v) {
@@ -185,27 +363,68 @@ public final class IntegerNetwork {
 
     /**
      * Layer {@code i} on integer inputs {@code a} (zero point {@code zx}, {@code n} samples): int32 accumulation, then
-     * requantization by the fixed-point multiplier ({@code fixedPoint}) or by the real multiplier rounded half up.
+     * requantization by the fixed-point multiplier in this network's mode ({@code fixedPoint}) or by the real
+     * multiplier rounded half up. The input zero point is folded into the bias:
+     * {@code sum_j w_j (a_j - zx) = sum_j w_j a_j - zx sum_j w_j}, the same int32 value.
      */
     int[] layerCodes(int i, int[] a, int zx, int n, boolean fixedPoint) {
         IntLayer l = layers.get(i);
         int qmax = (1 << bits) - 1;
         int lo = l.relu ? l.outputZeroPoint : 0;
-        int[] y = new int[n * l.out];
+        int in = l.in;
+        int out = l.out;
+        int[] w = l.wide;
+        int[] y = new int[n * out];
+        int[] acc = new int[out];
+        boolean single = requantization == Requantization.SINGLE_ROUNDING;
         for (int s = 0; s < n; s++) {
-            int base = s * l.in;
-            for (int c = 0; c < l.out; c++) {
-                int acc = l.bias[c];
-                int wb = c * l.in;
-                for (int j = 0; j < l.in; j++) {
-                    acc += l.weights[wb + j] * (a[base + j] - zx);
-                }
-                long v = l.outputZeroPoint + (fixedPoint ? l.multipliers[c].apply(acc)
-                        : Math.round(acc * l.multipliers[c].realMultiplier()));
-                y[s * l.out + c] = (int) Math.max(lo, Math.min(qmax, v));
+            int base = s * in;
+            for (int c = 0; c < out; c++) {
+                acc[c] = l.bias[c] - zx * l.weightSums[c];
+            }
+            dotRows(w, a, base, in, out, acc);
+            for (int c = 0; c < out; c++) {
+                FixedPoint m = l.multipliers[c];
+                long v = l.outputZeroPoint + (!fixedPoint ? Math.round(acc[c] * m.realMultiplier())
+                        : single ? m.applySingleRounding(acc[c]) : m.apply(acc[c]));
+                y[s * out + c] = (int) Math.max(lo, Math.min(qmax, v));
             }
         }
         return y;
+    }
+
+    /** {@code acc[c] += sum_j w[c * in + j] * a[base + j]}: four rows per pass over the input, int32 throughout. */
+    private static void dotRows(int[] w, int[] a, int base, int in, int out, int[] acc) {
+        int c = 0;
+        for (; c + 3 < out; c += 4) {
+            int w0 = c * in;
+            int w1 = w0 + in;
+            int w2 = w1 + in;
+            int w3 = w2 + in;
+            int s0 = 0;
+            int s1 = 0;
+            int s2 = 0;
+            int s3 = 0;
+            for (int j = 0; j < in; j++) {
+                int x = a[base + j];
+                s0 += w[w0 + j] * x;
+                s1 += w[w1 + j] * x;
+                s2 += w[w2 + j] * x;
+                s3 += w[w3 + j] * x;
+            }
+            acc[c] += s0;
+            acc[c + 1] += s1;
+            acc[c + 2] += s2;
+            acc[c + 3] += s3;
+        }
+        for (; c < out; c++) {
+            int wc = c * in;
+            int s0 = 0;
+            for (int j = 0; j < in; j++) {
+                s0 += w[wc + j] * a[base + j];
+            }
+            acc[c] += s0;
+        }
     }
 
     /** Integer-only forward pass, with the last layer's codes dequantized to float logits [N, classes]. */

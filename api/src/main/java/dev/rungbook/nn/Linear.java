@@ -86,16 +86,54 @@ public final class Linear implements WeightedLayer {
                     + " does not fit weight shape " + Arrays.toString(weight.shape()) + " (expected [N, " + in + "])");
         }
         int n = batch.dim(0);
+        float[] y = affine(TensorAccess.data(batch), n, TensorAccess.data(weight), TensorAccess.data(bias), in, out);
+        return TensorAccess.wrap(y, new int[] {n, out}, DType.F32, null);
+    }
+
+    /** {@code y[n x out] = x[n x in] w[out x in]^T + b}, as a new array. */
+    static float[] affine(float[] x, int n, float[] w, float[] b, int in, int out) {
         float[] y = new float[n * out];
-        Dense.matmulTransposedB(TensorAccess.data(batch), TensorAccess.data(weight), y, n, in, out);
-        float[] b = TensorAccess.data(bias);
+        Dense.matmulTransposedB(x, w, y, n, in, out);
         for (int i = 0; i < n; i++) {
             int row = i * out;
             for (int o = 0; o < out; o++) {
                 y[row + o] += b[o];
             }
         }
-        return TensorAccess.wrap(y, new int[] {n, out}, DType.F32, null);
+        return y;
+    }
+
+    /** The training node: gradients {@code dW = gy^T x}, {@code db = sum gy}, {@code dx = gy W}. */
+    Node node(WeightTransform transform) {
+        int in = inFeatures();
+        int out = outFeatures();
+        return new WeightedNode(this, transform) {
+            private float[] x;
+
+            @Override
+            Act forward(Act a, float[] w, boolean training) {
+                if (a.shape().length != 2 || a.shape()[1] != in) {
+                    throw new IllegalArgumentException(name + ": input shape " + Arrays.toString(a.shape())
+                            + " does not fit weight shape " + Arrays.toString(Linear.this.weight.shape()) + " (expected [N, "
+                            + in + "])");
+                }
+                x = a.v();
+                return new Act(affine(x, a.batch(), w, bias.value, in, out), new int[] {a.batch(), out});
+            }
+
+            @Override
+            Act backward(Act gy, float[] w, float[] gw, boolean needInput) {
+                int n = gy.batch();
+                Dense.addMatmulTransposedA(gy.v(), x, gw, n, out, in);
+                addBiasGradient(gy.v(), n, out, 1);
+                if (!needInput) {
+                    return null;
+                }
+                float[] gx = new float[n * in];
+                Dense.matmul(gy.v(), w, gx, n, out, in);
+                return new Act(gx, new int[] {n, in});
+            }
+        };
     }
 
     @Override

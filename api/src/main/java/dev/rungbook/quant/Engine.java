@@ -227,7 +227,8 @@ final class Engine {
             double a = q.unsigned ? Math.max(0.0, r.hi()) : r.absMax();
             float z = q.midRise ? -0.5f : 0f;
             if (!(a > 0)) {
-                return new float[] {1f, z};
+                // an all-zero segment: a mid-rise grid has no level at 0, so its levels +-s/2 must vanish
+                return new float[] {q.midRise ? Float.MIN_VALUE : 1f, z};
             }
             // a mid-rise grid's cells cover [-a, a] (overload point a); otherwise the top level is a itself
             double s = q.midRise ? a / (qmax + 1.0) : a / qmax;
@@ -247,6 +248,17 @@ final class Engine {
             sf = hi > 0 ? fitScale(sf, hi, qmax - z) : fitScale(sf, lo, qmin - z);
         }
         return new float[] {sf, (float) z + 0f}; // + 0f turns -0 into 0
+    }
+
+    /**
+     * The scaled value {@code y = u + z} ({@code u = x / s}) with the float32 rounding of the scale taken out: a
+     * {@code y} within {@code |u| 2^-22} of an integer (two float32 ulps of {@code u}, the most {@link #fitScale}
+     * moves the scale) is that integer, so that a value on a level stays on it under directed rules (floor, ceil,
+     * stochastic, custom). Round to nearest needs no such care.
+     */
+    static double onLevel(double u, double y) {
+        double r = Math.rint(y);
+        return Math.abs(y - r) <= Math.abs(u) * 0x1p-22 ? r : y;
     }
 
     /** The element rule used for the linear grid (learned layer rules fall back to nearest inside range searches). */
@@ -278,7 +290,7 @@ final class Engine {
         double sse = 0;
         for (int i = from; i < to; i++) {
             double y = v[i] / sc + z;
-            double c = nearest ? Math.rint(y) : rr.round(y, idx[i - from]);
+            double c = nearest ? Math.rint(y) : rr.round(onLevel(v[i] / sc, y), idx[i - from]);
             c = c < qmin ? qmin : (c > qmax ? qmax : c);
             double e = (float) (sc * (c - z)) - (double) v[i];
             sse += e * e;
@@ -306,7 +318,8 @@ final class Engine {
         } else {
             int[] idx = indicesOf(s);
             for (int i = 0; i < m; i++) {
-                double c = rr.round(v[i] / sc + z, idx[i]);
+                double u = v[i] / sc;
+                double c = rr.round(onLevel(u, u + z), idx[i]);
                 c = c < qmin ? qmin : (c > qmax ? qmax : c);
                 codes[i] = (int) c;
                 deq[i] = (float) (sc * (c - z));

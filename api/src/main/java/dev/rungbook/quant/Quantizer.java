@@ -46,6 +46,10 @@ import java.util.Objects;
  * {@link #apply} with an {@link IllegalArgumentException} naming both the tensor and the spec.
  *
  * <p>Equality is by value; {@link #toString()} is the {@link #label()}.
+ *
+ * <h2>Text form</h2>
+ * {@link #parse(String)} reads a short spec text such as {@code "int4 per-group(1,128) mse"} and {@link #toText()}
+ * writes one; the grammar is in {@link SpecText}.
  */
 public final class Quantizer {
     /** The kind of grid. */
@@ -226,6 +230,16 @@ public final class Quantizer {
         return of(Kind.TERNARY, 2, Granularity.perTensor(), null);
     }
 
+    /**
+     * The spec a spec text describes, for example {@code Quantizer.parse("uint8 asym per-tensor p99.9")}; the
+     * grammar is in {@link SpecText}.
+     *
+     * @throws SpecSyntaxException naming the bad token and its column
+     */
+    public static Quantizer parse(String text) {
+        return SpecText.parse(text);
+    }
+
     // ---------------------------------------------------------------- fluent steps
 
     private Quantizer require(boolean ok, String what) {
@@ -389,12 +403,61 @@ public final class Quantizer {
      * Quantizes {@code t}, reporting each channel or group to {@code progress} and stopping with an
      * {@link dev.rungbook.progress.OperationInterruptedException} if the thread is interrupted.
      *
-     * @throws IllegalArgumentException if the spec does not fit the tensor, or the tensor holds NaN or infinity
+     * @throws IllegalArgumentException if the spec does not fit the tensor, the tensor holds NaN or infinity, or a
+     *     value near {@link Float#MAX_VALUE} would dequantize beyond the float32 range on this grid
      */
     public Quantized apply(Tensor t, Progress progress) {
         Objects.requireNonNull(t, "tensor");
         Objects.requireNonNull(progress, "progress");
-        return new Engine(this, t, progress).run();
+        return checkRepresentable(t, new Engine(this, t, progress).run());
+    }
+
+    /**
+     * Refuses a result whose dequantized values left the float32 range: near {@link Float#MAX_VALUE} a grid can have
+     * levels beyond it (the extra negative code of a signed grid, a zero point that is not centred, a power-of-two
+     * scale rounded up, the MXINT8 code -128 at the largest E8M0 scale). Costs one pass over the segments unless some
+     * segment's largest level is beyond float32, and one over the values only then.
+     */
+    private Quantized checkRepresentable(Tensor t, Quantized r) {
+        double units;
+        switch (kind) {
+            case LINEAR:
+                units = qmax() - (double) qmin() + 1; // |q - z| for a zero point within the codes (or -1/2)
+                break;
+            case FLOAT:
+                units = format.max();
+                break;
+            case MX:
+                units = format == null ? 2 : format.max();
+                break;
+            case NF4:
+            case LOG:
+                units = 1;
+                break;
+            default:
+                return r; // codebook levels and sign-grid alphas are means of the (finite) values
+        }
+        boolean risky = false;
+        for (float s : dev.rungbook.internal.TensorAccess.data(r.scales())) {
+            if (!(s * units <= Float.MAX_VALUE)) {
+                risky = true;
+                break;
+            }
+        }
+        if (!risky) {
+            return r;
+        }
+        float[] x = dev.rungbook.internal.TensorAccess.data(t);
+        float[] y = dev.rungbook.internal.TensorAccess.data(r.dequantized());
+        for (int i = 0; i < y.length; i++) {
+            if (!Float.isFinite(y[i])) {
+                throw new IllegalArgumentException(t.label() + ": value " + x[i] + " at index " + i
+                        + " dequantizes to " + y[i] + ": this grid's levels reach beyond the float32 range ("
+                        + Float.MAX_VALUE + "); scale the tensor down or use a symmetric min-max grid (spec "
+                        + label() + ")");
+            }
+        }
+        return r;
     }
 
     // ---------------------------------------------------------------- accessors
@@ -529,6 +592,15 @@ public final class Quantizer {
             b.append(' ').append(rounding.label());
         }
         return b.toString();
+    }
+
+    /**
+     * The canonical spec text ({@link SpecText#format}); {@code Quantizer.parse(q.toText()).equals(q)}.
+     *
+     * @throws IllegalArgumentException for a learned or custom rounding or a custom range rule (no text form)
+     */
+    public String toText() {
+        return SpecText.format(this);
     }
 
     @Override

@@ -6,7 +6,10 @@ import java.util.Objects;
  * A rule that turns scaled values into integer codes on a quantization grid.
  *
  * <p>A linear grid maps a value {@code x} with scale {@code s} and zero point {@code z} to the code
- * {@code clamp(round(x / s + z), qmin, qmax)}; this interface is the {@code round}. Every rule is one of two kinds:
+ * {@code clamp(round(x / s + z), qmin, qmax)}; this interface is the {@code round}. The scale is a float32 number, so
+ * {@code x / s} of a value that is a level ({@code fl(s * q) = x}) can miss {@code q} by a few ulps: a scaled value
+ * within {@code |x / s| 2^-22} of an integer is passed to the rule as that integer, so that values on a level stay on
+ * it under floor, ceil, stochastic and custom rules. Every rule is one of two kinds:
  * {@link ElementRounding} (each value on its own, the common case) or {@link LayerRounding} (the whole weight tensor at
  * once, for rules that let the rounding of one weight depend on the others). Quantizers apply the clamp after an
  * element rule, so a rule never needs to know the grid's bounds.

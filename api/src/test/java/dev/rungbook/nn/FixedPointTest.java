@@ -70,6 +70,30 @@ class FixedPointTest {
     }
 
     @Test
+    void singleRoundingMatchesABigDecimalReferenceOnAMillionCases() {
+        // Source: BigDecimal arithmetic: acc * M0q / 2^(31 + n) rounded half away from zero, saturated to int32.
+        java.util.Random r = dev.rungbook.testing.Fixtures.random(91);
+        int differFromDouble = 0;
+        for (int i = 0; i < 1_000_000; i++) {
+            double m = Math.exp(r.nextDouble() * (Math.log(64) - Math.log(1e-6)) + Math.log(1e-6));
+            int acc = r.nextInt(5) == 0 ? r.nextInt() : r.nextInt(1 << 21) - (1 << 20);
+            FixedPoint p = FixedPoint.of(m);
+            BigDecimal exact = new BigDecimal(BigInteger.valueOf(acc).multiply(BigInteger.valueOf(p.multiplier())))
+                    .divide(new BigDecimal(BigInteger.ONE.shiftLeft(31 + p.shift())));
+            BigInteger want = exact.setScale(0, RoundingMode.HALF_UP).toBigInteger()
+                    .max(BigInteger.valueOf(Integer.MIN_VALUE)).min(BigInteger.valueOf(Integer.MAX_VALUE));
+            assertEquals(want.intValueExact(), p.applySingleRounding(acc), "acc " + acc + " M " + m);
+            double d = acc * m;
+            if (Math.abs(d) < 1e9 && p.applySingleRounding(acc) != Math.round(d)
+                    && Math.abs(d - Math.floor(d) - 0.5) > Math.abs(d) * 0x1p-30 + 1e-9) {
+                differFromDouble++;
+            }
+        }
+        // Away from ties (beyond the Q31 error of M0, relative 2^-31), one rounding of the product is that of acc * M.
+        assertEquals(0, differFromDouble);
+    }
+
+    @Test
     void multipliersOfOneOrMoreShiftLeft() {
         FixedPoint p = FixedPoint.of(3.0);
         assertEquals(-2, p.shift());

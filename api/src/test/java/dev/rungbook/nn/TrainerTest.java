@@ -6,6 +6,8 @@ import static org.junit.jupiter.api.Assertions.assertTrue;
 
 import dev.rungbook.progress.OperationInterruptedException;
 import dev.rungbook.tensor.Tensor;
+import java.util.ArrayList;
+import java.util.List;
 import java.util.Random;
 import org.junit.jupiter.api.Test;
 
@@ -40,47 +42,37 @@ class TrainerTest {
             xv[i] = (float) r.nextGaussian();
         }
         int[] y = {0, 1, 2, 1, 0, 2};
-        Mlp mlp = Mlp.of(net);
-        float[][] w = mlp.weights();
-        float[][] b = mlp.biases();
-        float[][] gw = {new float[w[0].length], new float[w[1].length], new float[w[2].length]};
-        float[][] gb = {new float[b[0].length], new float[b[1].length], new float[b[2].length]};
-        double l0 = mlp.lossAndGradients(w, b, xv, y, gw, gb);
+        List<Node> nodes = new ArrayList<>();
+        for (Layer l : net.layers()) {
+            nodes.add(Node.of(l, q -> null));
+        }
+        List<Node.Param> params = new ArrayList<>();
+        nodes.forEach(n -> params.addAll(n.params()));
+        double l0 = Trainer.lossAndGradients(nodes, params, new Node.Act(xv, new int[] {m, 5}), y);
         Tensor x = Tensor.of(xv, m, 5);
         assertEquals(loss(net, x, y), l0, 1e-5);
         double h = 1e-2;
         int checked = 0;
-        for (int l = 0; l < 3; l++) {
-            for (int i = 0; i < w[l].length; i += 3) {
-                float keep = w[l][i];
-                w[l][i] = (float) (keep + h);
-                double up = loss(mlp.network(net, copy(w), copy(b)), x, y);
-                w[l][i] = (float) (keep - h);
-                double down = loss(mlp.network(net, copy(w), copy(b)), x, y);
-                w[l][i] = keep;
+        for (Node.Param p : params) {
+            for (int i = 0; i < p.value.length; i += p.name.endsWith(".weight") ? 3 : 1) {
+                float keep = p.value[i];
+                p.value[i] = (float) (keep + h);
+                double up = loss(network(nodes), x, y);
+                p.value[i] = (float) (keep - h);
+                double down = loss(network(nodes), x, y);
+                p.value[i] = keep;
                 double numeric = (up - down) / (2 * h);
-                assertEquals(numeric, gw[l][i], 2e-3 + 0.02 * Math.abs(numeric), "layer " + l + " weight " + i);
+                assertEquals(numeric, p.grad[i], 2e-3 + 0.02 * Math.abs(numeric), p.name + " " + i);
                 checked++;
-            }
-            for (int i = 0; i < b[l].length; i++) {
-                float keep = b[l][i];
-                b[l][i] = (float) (keep + h);
-                double up = loss(mlp.network(net, copy(w), copy(b)), x, y);
-                b[l][i] = (float) (keep - h);
-                double down = loss(mlp.network(net, copy(w), copy(b)), x, y);
-                b[l][i] = keep;
-                assertEquals((up - down) / (2 * h), gb[l][i], 2e-3, "layer " + l + " bias " + i);
             }
         }
         assertTrue(checked > 20);
     }
 
-    private static float[][] copy(float[][] a) {
-        float[][] c = new float[a.length][];
-        for (int i = 0; i < a.length; i++) {
-            c[i] = a[i].clone();
-        }
-        return c;
+    private static Network network(List<Node> nodes) {
+        List<Layer> layers = new ArrayList<>();
+        nodes.forEach(n -> layers.add(n.layer()));
+        return Network.of(layers);
     }
 
     @Test
@@ -103,6 +95,40 @@ class TrainerTest {
         Network b = t.train(Trainer.initialMlp(1, 2, 8, 2), d);
         assertTrue(a.accuracy(d) > 0.95, "accuracy " + a.accuracy(d));
         assertEquals(a.parameters(), b.parameters());
+    }
+
+    @Test
+    void trainsAConvNetWithBatchNormAndIsDeterministic() {
+        // A bright 2x2 spot in the left or the right half of a noisy 8x8 image: the class is visible to a 3x3
+        // convolution and max pooling, so a trained conv net must exceed 95% accuracy (chance is 50%).
+        Random r = new Random(4);
+        int n = 400;
+        float[] xv = new float[n * 64];
+        int[] y = new int[n];
+        for (int s = 0; s < n; s++) {
+            y[s] = s % 2;
+            for (int k = 0; k < 64; k++) {
+                xv[s * 64 + k] = (float) (0.5 * r.nextGaussian());
+            }
+            int row = r.nextInt(7);
+            int col = (y[s] == 0 ? 0 : 4) + r.nextInt(3);
+            for (int u = 0; u < 2; u++) {
+                for (int v = 0; v < 2; v++) {
+                    xv[s * 64 + (row + u) * 8 + col + v] += 2f;
+                }
+            }
+        }
+        Dataset d = new Dataset(Tensor.of(xv, n, 1, 8, 8), y);
+        Network start = Network.of(Conv2d.initial("conv1", 1, 4, 3, 1, 1, 1), BatchNorm.initial("bn1", 4),
+                new Relu("relu1"), Pool2d.max("pool1", 2, 2), new Flatten("flatten"),
+                Trainer.initialMlp(2, 64, 2).layers().get(0));
+        Trainer t = Trainer.adam(1e-2).epochs(8).batchSize(32).seed(3);
+        Network a = t.train(start, d);
+        assertTrue(a.accuracy(d) > 0.95, "accuracy " + a.accuracy(d));
+        assertTrue(a.accuracy(d) > start.accuracy(d) + 0.2, "untrained " + start.accuracy(d));
+        BatchNorm bn = (BatchNorm) a.layers().get(1);
+        assertTrue(bn.mean().getFlat(0) != 0f && bn.variance().getFlat(0) != 1f, "running statistics updated");
+        assertEquals(a.parameters(), t.train(start, d).parameters());
     }
 
     @Test

@@ -7,7 +7,7 @@ import picocli.CommandLine.Command;
 /** The {@code rungbook} command line: {@code java -jar rungbook-all.jar COMMAND ...}. */
 @Command(name = "rungbook", mixinStandardHelpOptions = true, version = "rungbook 0.1.0",
         description = "Quantization experiments for Java: a Jupyter kernel, notebooks and a batch command line.",
-        subcommands = {DemoCommand.class, SamplesCommand.class, KernelCommand.class, RunCommand.class})
+        subcommands = {DemoCommand.class, SamplesCommand.class, KernelCommand.class, RunCommand.class, PlanCommand.class})
 public final class Main implements Callable<Integer> {
     /** Runs the command line and exits with its code (0 ok, 1 failure, 2 usage error). */
     public static void main(String[] args) {

@@ -45,6 +45,8 @@ class JupyterClientsTest {
     @Test
     void survivesFloodsBadSignaturesErrorsAndInterrupts() throws Exception {
         String out = runScript("protocol_checks.py");
+        // the PASS/FAIL lines feed docs/make_reliability.py (kernel faults survived)
+        Files.writeString(Path.of("target", "kernel-faults.txt"), out, StandardCharsets.UTF_8);
         assertTrue(out.contains("0 failure(s)"), out);
         assertTrue(out.contains("dropped a message with a bad or missing HMAC signature"), out);
         assertTrue(out.contains("dropped an unreadable message"), out);

@@ -1,0 +1,294 @@
+package dev.rungbook.nn;
+
+import dev.rungbook.internal.TensorAccess;
+import dev.rungbook.tensor.DType;
+import dev.rungbook.tensor.Tensor;
+import java.util.Arrays;
+import java.util.Random;
+
+/**
+ * A 2-D convolution (cross-correlation, as in every deep-learning framework) on batches shaped {@code [N, C, H, W]}
+ * (NCHW): {@code y[n, o, i, j] = b[o] + sum_{c, u, v} w[o, c, u, v] x[n, c, i*stride + u - pad, j*stride + v - pad]},
+ * with zeros outside the input. Weight shaped {@code [out, in, kh, kw]} (axis 0 the output channel, as for
+ * {@link Linear}), bias {@code [out]}. The output is {@code [N, out, (H + 2 pad - kh) / stride + 1, ...]}.
+ *
+ * <p>The forward pass lays each sample's receptive fields out as rows ("im2col", {@code [P, in*kh*kw]} with
+ * {@code P} output positions) and multiplies them by the weight seen as a {@code [out, in*kh*kw]} matrix, which gives
+ * the output directly in NCHW order.
+ */
+public final class Conv2d implements WeightedLayer {
+    private final String name;
+    private final Tensor weight;
+    private final Tensor bias;
+    private final int stride;
+    private final int padding;
+
+    /**
+     * @param name the layer's name (checkpoint tensors {@code name + ".weight"}, {@code name + ".bias"})
+     * @param weight shaped [out, in, kh, kw]
+     * @param bias shaped [out]
+     * @param stride step between receptive fields, at least 1
+     * @param padding zeros added on each side of both spatial axes, at least 0
+     * @throws IllegalArgumentException naming the layer if the shapes or numbers do not fit
+     */
+    public Conv2d(String name, Tensor weight, Tensor bias, int stride, int padding) {
+        if (weight.rank() != 4) {
+            throw new IllegalArgumentException(name + ": convolution weight must be [out, in, kh, kw], got "
+                    + Arrays.toString(weight.shape()));
+        }
+        if (bias.rank() != 1 || bias.dim(0) != weight.dim(0)) {
+            throw new IllegalArgumentException(name + ": bias shape " + Arrays.toString(bias.shape())
+                    + " does not fit weight shape " + Arrays.toString(weight.shape()));
+        }
+        if (stride < 1 || padding < 0) {
+            throw new IllegalArgumentException(name + ": stride must be at least 1 and padding at least 0, got stride "
+                    + stride + ", padding " + padding);
+        }
+        this.name = name;
+        this.weight = weight;
+        this.bias = bias;
+        this.stride = stride;
+        this.padding = padding;
+    }
+
+    /** A convolution with stride 1 and no padding. */
+    public Conv2d(String name, Tensor weight, Tensor bias) {
+        this(name, weight, bias, 1, 0);
+    }
+
+    /**
+     * A freshly initialised square convolution: weights drawn from N(0, 2 / (in k k)) (He initialisation, common
+     * practice before ReLU) with a seeded generator, biases zero.
+     */
+    public static Conv2d initial(String name, int in, int out, int kernel, int stride, int padding, long seed) {
+        Random r = new Random(seed);
+        float[] w = new float[out * in * kernel * kernel];
+        double sd = Math.sqrt(2.0 / (in * kernel * kernel));
+        for (int i = 0; i < w.length; i++) {
+            w[i] = (float) (r.nextGaussian() * sd);
+        }
+        return new Conv2d(name, Tensor.of(w, out, in, kernel, kernel), Tensor.of(new float[out], out), stride,
+                padding);
+    }
+
+    @Override
+    public String name() {
+        return name;
+    }
+
+    /** The weight, shaped [out, in, kh, kw]. */
+    @Override
+    public Tensor weight() {
+        return weight;
+    }
+
+    /** The bias, shaped [out]. */
+    @Override
+    public Tensor bias() {
+        return bias;
+    }
+
+    /** Output channels. */
+    public int outChannels() {
+        return weight.dim(0);
+    }
+
+    /** Input channels. */
+    public int inChannels() {
+        return weight.dim(1);
+    }
+
+    /** Kernel height. */
+    public int kernelHeight() {
+        return weight.dim(2);
+    }
+
+    /** Kernel width. */
+    public int kernelWidth() {
+        return weight.dim(3);
+    }
+
+    /** The stride on both spatial axes. */
+    public int stride() {
+        return stride;
+    }
+
+    /** The zero padding on each side of both spatial axes. */
+    public int padding() {
+        return padding;
+    }
+
+    @Override
+    public Conv2d withWeight(Tensor newWeight) {
+        if (!Arrays.equals(newWeight.shape(), weight.shape())) {
+            throw new IllegalArgumentException(name + ": new weight shape " + Arrays.toString(newWeight.shape())
+                    + " differs from " + Arrays.toString(weight.shape()));
+        }
+        return new Conv2d(name, newWeight, bias, stride, padding);
+    }
+
+    @Override
+    public Conv2d withBias(Tensor newBias) {
+        return new Conv2d(name, weight, newBias, stride, padding);
+    }
+
+    /** The output shape for an input shaped {@code [N, C, H, W]}, or an error naming the layer. */
+    public int[] outputShape(int[] input) {
+        if (input.length != 4 || input[1] != inChannels()) {
+            throw new IllegalArgumentException(name + ": input shape " + Arrays.toString(input)
+                    + " does not fit weight shape " + Arrays.toString(weight.shape()) + " (expected [N, "
+                    + inChannels() + ", H, W])");
+        }
+        int oh = (input[2] + 2 * padding - kernelHeight()) / stride + 1;
+        int ow = (input[3] + 2 * padding - kernelWidth()) / stride + 1;
+        if (input[2] + 2 * padding < kernelHeight() || input[3] + 2 * padding < kernelWidth()) {
+            throw new IllegalArgumentException(name + ": input " + input[2] + "x" + input[3] + " with padding "
+                    + padding + " is smaller than the kernel " + kernelHeight() + "x" + kernelWidth());
+        }
+        return new int[] {input[0], outChannels(), oh, ow};
+    }
+
+    @Override
+    public Tensor forward(Tensor batch) {
+        int[] os = outputShape(batch.shape());
+        float[] y = forward(TensorAccess.data(batch), batch.shape(), os, TensorAccess.data(weight),
+                TensorAccess.data(bias), null);
+        return TensorAccess.wrap(y, os, DType.F32, null);
+    }
+
+    /** The forward pass on raw arrays; keeps each sample's im2col matrix in {@code cols} when it is not null. */
+    private float[] forward(float[] x, int[] is, int[] os, float[] w, float[] b, float[][] cols) {
+        int n = is[0];
+        int out = os[1];
+        int p = os[2] * os[3];
+        int k = inChannels() * kernelHeight() * kernelWidth();
+        float[] y = new float[n * out * p];
+        float[] col = null;
+        float[] ys = new float[out * p];
+        for (int s = 0; s < n; s++) {
+            if (cols != null) {
+                cols[s] = new float[p * k];
+                col = cols[s];
+            } else if (col == null) {
+                col = new float[p * k];
+            }
+            im2col(x, s, is, os, col);
+            Dense.matmulTransposedB(w, col, ys, out, k, p);
+            int base = s * out * p;
+            for (int o = 0; o < out; o++) {
+                float bo = b[o];
+                for (int q = 0; q < p; q++) {
+                    y[base + o * p + q] = ys[o * p + q] + bo;
+                }
+            }
+        }
+        return y;
+    }
+
+    /** Writes sample {@code s}'s receptive fields as rows: {@code col[q, (c, u, v)]}, zero where padded. */
+    private void im2col(float[] x, int s, int[] is, int[] os, float[] col) {
+        int c = is[1];
+        int h = is[2];
+        int wd = is[3];
+        int kh = kernelHeight();
+        int kw = kernelWidth();
+        int k = c * kh * kw;
+        int oh = os[2];
+        int ow = os[3];
+        for (int i = 0; i < oh; i++) {
+            for (int j = 0; j < ow; j++) {
+                int row = (i * ow + j) * k;
+                int t = 0;
+                for (int ch = 0; ch < c; ch++) {
+                    int plane = (s * c + ch) * h;
+                    for (int u = 0; u < kh; u++) {
+                        int yi = i * stride + u - padding;
+                        for (int v = 0; v < kw; v++) {
+                            int xj = j * stride + v - padding;
+                            col[row + t++] = yi < 0 || yi >= h || xj < 0 || xj >= wd ? 0f
+                                    : x[(plane + yi) * wd + xj];
+                        }
+                    }
+                }
+            }
+        }
+    }
+
+    /** Adds the rows of {@code gcol} back onto sample {@code s} of {@code gx} (the adjoint of {@link #im2col}). */
+    private void col2im(float[] gcol, int s, int[] is, int[] os, float[] gx) {
+        int c = is[1];
+        int h = is[2];
+        int wd = is[3];
+        int kh = kernelHeight();
+        int kw = kernelWidth();
+        int k = c * kh * kw;
+        for (int i = 0; i < os[2]; i++) {
+            for (int j = 0; j < os[3]; j++) {
+                int row = (i * os[3] + j) * k;
+                int t = 0;
+                for (int ch = 0; ch < c; ch++) {
+                    int plane = (s * c + ch) * h;
+                    for (int u = 0; u < kh; u++) {
+                        int yi = i * stride + u - padding;
+                        for (int v = 0; v < kw; v++) {
+                            int xj = j * stride + v - padding;
+                            if (yi >= 0 && yi < h && xj >= 0 && xj < wd) {
+                                gx[(plane + yi) * wd + xj] += gcol[row + t];
+                            }
+                            t++;
+                        }
+                    }
+                }
+            }
+        }
+    }
+
+    /**
+     * The training node. With {@code cols} the im2col rows of a sample and {@code gy} its output gradient as
+     * {@code [out, P]}: {@code dW += gy cols}, {@code db += sum_P gy}, {@code dcols = gy^T W}, folded back by col2im.
+     */
+    Node node(WeightTransform transform) {
+        int out = outChannels();
+        int k = inChannels() * kernelHeight() * kernelWidth();
+        return new WeightedNode(this, transform) {
+            private float[][] cols;
+            private int[] is;
+            private int[] os;
+
+            @Override
+            Act forward(Act a, float[] w, boolean training) {
+                is = a.shape();
+                os = outputShape(is);
+                cols = new float[is[0]][];
+                return new Act(Conv2d.this.forward(a.v(), is, os, w, bias.value, cols), os);
+            }
+
+            @Override
+            Act backward(Act gy, float[] w, float[] gw, boolean needInput) {
+                int n = is[0];
+                int p = os[2] * os[3];
+                float[] g = gy.v();
+                float[] gs = new float[out * p];
+                float[] gcol = new float[p * k];
+                float[] gx = needInput ? new float[is[0] * is[1] * is[2] * is[3]] : null;
+                for (int s = 0; s < n; s++) {
+                    System.arraycopy(g, s * out * p, gs, 0, out * p);
+                    Dense.addMatmul(gs, cols[s], gw, out, p, k);
+                    if (needInput) {
+                        Arrays.fill(gcol, 0f);
+                        Dense.addMatmulTransposedA(gs, w, gcol, out, p, k);
+                        col2im(gcol, s, is, os, gx);
+                    }
+                }
+                addBiasGradient(g, n, out, p);
+                return needInput ? new Act(gx, is) : null;
+            }
+        };
+    }
+
+    @Override
+    public String toString() {
+        return "Conv2d " + name + " " + inChannels() + " -> " + outChannels() + ", kernel " + kernelHeight() + "x"
+                + kernelWidth() + ", stride " + stride + ", padding " + padding;
+    }
+}
