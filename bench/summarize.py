@@ -76,4 +76,44 @@ if q:
                  f"and NF4 take {ms(q['apiPerGroupInt4']) / fused:.1f}x and {ms(q['apiNf4']) / fused:.1f}x the fused "
                  f"figure (target: within 2x).")
     lines.append("")
+fw = load("ForwardBench.json")
+if fw:
+    def pct(row, p):
+        m = row["primaryMetric"]
+        v = m["scorePercentiles"][p]
+        unit = m["scoreUnit"]
+        return v if unit.startswith("ms") else v / 1e6 if unit.startswith("ns") else v * 1000 if unit.startswith("s/") else v
+
+    macs = 512 * (72 * 256 + 256 * 128 + 128 * 5)  # one forward pass of the sample classifier on 512 samples
+    work = {"floatForward": 2 * macs, "integerForward": 2 * macs, "integerForwardSingleRounding": 2 * macs,
+            "simulatedForward": 2 * macs, "peakSgemm": 2 * 1024 ** 3, "peakJavaFma": 2 * 1024 * 4096,
+            "peakJavaInt32MulAdd": 2 * 1024 * 4096}
+    labels = {"floatForward": "float forward (Network.forward)",
+              "integerForward": "integer-only forward (IntegerNetwork, published double rounding)",
+              "integerForwardSingleRounding": "integer-only forward, single-rounding requantization",
+              "simulatedForward": "simulated (fake-quant) forward",
+              "peakSgemm": "peak: float32 1024^3 sgemm (library linear algebra)",
+              "peakJavaFma": "peak: Java float FMA loop (L1-resident)",
+              "peakJavaInt32MulAdd": "peak: Java int32 multiply-add loop (L1-resident)"}
+    rate = {}
+    lines += ["## Forward passes of the sample classifier, batch 512 (ForwardBench)", "",
+              "| benchmark | min ms | median ms | G op/s at min | G op/s at median |",
+              "| --- | ---: | ---: | ---: | ---: |"]
+    for k in labels:
+        if k in fw:
+            lo, med = pct(fw[k], "0.0"), pct(fw[k], "50.0")
+            rate[k] = (work[k] / lo / 1e6, work[k] / med / 1e6)
+            lines.append(f"| {labels[k]} | {lo:.3f} | {med:.3f} | {rate[k][0]:.2f} | {rate[k][1]:.2f} |")
+    lines.append("")
+    if all(k in rate for k in ("floatForward", "integerForward", "peakJavaFma", "peakJavaInt32MulAdd", "peakSgemm")):
+        f, i = rate["floatForward"][0], rate["integerForward"][0]
+        ratio = pct(fw["integerForward"], "0.0") / pct(fw["floatForward"], "0.0")
+        ratio_med = pct(fw["integerForward"], "50.0") / pct(fw["floatForward"], "50.0")
+        lines.append(f"At the fastest samples, the float pass runs at **{f:.1f} GFLOP/s** = "
+                     f"**{f / rate['peakJavaFma'][0]:.0%}** of the Java FMA loop and {f / rate['peakSgemm'][0]:.0%} of "
+                     f"the sgemm peak; the integer-only pass at **{i:.1f} GOP/s** = "
+                     f"**{i / rate['peakJavaInt32MulAdd'][0]:.0%}** of the Java int32 multiply-add loop (targets: at "
+                     f"least 30% of the machine's multiply-add throughput). The integer pass takes "
+                     f"**{ratio:.2f}x** the float pass's time ({ratio_med:.2f}x at the medians; target: at most 2x).")
+        lines.append("")
 print("\n".join(lines))

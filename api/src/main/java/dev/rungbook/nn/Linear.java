@@ -93,13 +93,7 @@ public final class Linear implements WeightedLayer {
     /** {@code y[n x out] = x[n x in] w[out x in]^T + b}, as a new array. */
     static float[] affine(float[] x, int n, float[] w, float[] b, int in, int out) {
         float[] y = new float[n * out];
-        Dense.matmulTransposedB(x, w, y, n, in, out);
-        for (int i = 0; i < n; i++) {
-            int row = i * out;
-            for (int o = 0; o < out; o++) {
-                y[row + o] += b[o];
-            }
-        }
+        Dense.affine(x, w, b, y, n, in, out);
         return y;
     }
 

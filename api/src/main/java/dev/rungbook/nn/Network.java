@@ -1,6 +1,5 @@
 package dev.rungbook.nn;
 
-import dev.rungbook.internal.TensorAccess;
 import dev.rungbook.tensor.Tensor;
 import java.util.ArrayList;
 import java.util.LinkedHashMap;
@@ -337,23 +336,14 @@ public final class Network {
         return x;
     }
 
-    /** The index of the largest output per sample. */
+    /** The index of the largest output per sample (the first on ties). */
     public int[] predict(Tensor batch) {
-        Tensor logits = forward(batch);
-        int n = logits.dim(0);
-        int k = logits.dim(1);
-        float[] z = TensorAccess.data(logits);
-        int[] out = new int[n];
-        for (int i = 0; i < n; i++) {
-            int best = 0;
-            for (int j = 1; j < k; j++) {
-                if (z[i * k + j] > z[i * k + best]) {
-                    best = j;
-                }
-            }
-            out[i] = best;
-        }
-        return out;
+        return Evaluation.argmax(forward(batch));
+    }
+
+    /** Accuracy, mean cross-entropy loss and the per-class confusion table on {@code data} (see {@link Evaluation}). */
+    public Evaluation evaluate(Dataset data) {
+        return Evaluation.of(this, data);
     }
 
     /** The share of samples whose prediction equals the label. */

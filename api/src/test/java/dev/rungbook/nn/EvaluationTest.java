@@ -60,7 +60,7 @@ class EvaluationTest {
             labels[i] = i % 4;
         }
         Dataset d = new Dataset(x, labels);
-        Evaluation e = Evaluation.of(net, d);
+        Evaluation e = net.evaluate(d);
         assertEquals(net.accuracy(d), e.accuracy(), 0);
         assertArrayEquals(net.predict(x), e.predictions());
         int total = 0;

@@ -5,23 +5,17 @@ import static org.junit.jupiter.api.Assertions.assertThrows;
 import static org.junit.jupiter.api.Assertions.assertTrue;
 
 import dev.rungbook.internal.TensorAccess;
-import dev.rungbook.io.Checkpoint;
 import dev.rungbook.quant.Quantizer;
 import dev.rungbook.round.Rounding;
 import dev.rungbook.tensor.Tensor;
 import java.nio.file.Path;
-import java.util.Map;
 import org.junit.jupiter.api.Test;
 
 class IntegerAgreementTest {
     static final Path SAMPLES = Path.of("..", "sample-tensors");
 
     static Network conveyor() {
-        try (Checkpoint c = Checkpoint.open(SAMPLES.resolve("conveyor-mlp.f32.safetensors"))) {
-            Map<String, Tensor> t = new java.util.HashMap<>();
-            c.tensors().forEach((k, v) -> t.put(k, Tensor.of(v.toFloatArray(), v.shape()).withName(k)));
-            return Network.mlp(t, "fc1", "fc2", "fc3");
-        }
+        return QatTest.sampleMlp();
     }
 
     /** The simulated network's last-layer codes: round(y / s) + z of its dequantized outputs. */

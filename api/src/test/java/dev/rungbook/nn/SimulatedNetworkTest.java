@@ -239,6 +239,24 @@ class SimulatedNetworkTest {
     }
 
     @Test
+    void adaptiveRoundingRunsPerLayerOnCapturedInputs() {
+        // Source: AdaRound's objective is the layer's output error on its calibration inputs (Nagel et al. 2020);
+        // learned on the captured inputs, it should not do worse there than rounding to nearest (it starts from it).
+        Network net = Trainer.initialMlp(56, 8, 16, 3);
+        Tensor cal = EqualizationTest.inputs(57, 128, 8);
+        NetworkQuantization base = NetworkQuantization.of(net).weights(Quantizer.linear(3)).floatActivations()
+                .floatInput();
+        SimulatedNetwork nearest = base.calibrate(cal);
+        SimulatedNetwork learned = base.layer("fc1", l -> l.learnedRounding(
+                c -> Rounding.adaptive(c).iterations(300).seed(3))).calibrate(cal);
+        double en = nearest.layerErrors(cal).doubleColumn("alone_mse").get(1);
+        double el = learned.layerErrors(cal).doubleColumn("alone_mse").get(1);
+        assertTrue(el <= en * 1.0001, "adaptive " + el + " vs nearest " + en);
+        assertTrue(learned.weights("fc1").orElseThrow().spec().rounding().label().startsWith("adaptive("));
+        assertEquals(Rounding.nearest(), learned.weights("fc2").orElseThrow().spec().rounding());
+    }
+
+    @Test
     void perLayerWeightQuantizersFromAMap() {
         Network net = Trainer.initialMlp(53, 8, 12, 10, 3);
         NetworkQuantization q = NetworkQuantization.of(net)
@@ -255,6 +273,33 @@ class SimulatedNetworkTest {
         Table t = q.table();
         assertEquals(4, t.rowCount());
         assertEquals("int4 sym per-channel(0)", t.stringColumn("weights").get(1));
+    }
+
+    @Test
+    void convolutionalNetworksJoinThroughWeightedLayer() {
+        // Common practice: int8 per-channel weights and per-tensor activations keep a small conv net's output SQNR
+        // well above 20 dB.
+        Network net = LayersTest.convNet(40).foldBatchNorm();
+        Tensor cal = Tensor.of(dev.rungbook.testing.Fixtures.gaussian(81, 128 * 2 * 8 * 8), 128, 2, 8, 8);
+        Tensor x = Tensor.of(dev.rungbook.testing.Fixtures.gaussian(82, 64 * 2 * 8 * 8), 64, 2, 8, 8);
+        SimulatedNetwork sim = NetworkQuantization.of(net).calibrate(cal);
+        assertEquals(List.of("conv1", "conv2", "fc"), sim.layerNames());
+        Table t = sim.layerErrors(x);
+        assertEquals(List.of("input", "conv1", "conv2", "fc"), t.stringColumn("layer").asList());
+        double sqnr = t.doubleColumn("cumulative_sqnr_db").get(3);
+        assertTrue(sqnr > 20, "conv net int8 output SQNR " + sqnr);
+        assertEquals(LayerErrorsTest.direct(net.forward(x), sim.forward(x))[1], sqnr, 1e-9 * sqnr);
+        // unfolded batch norms run in float inside the stage of the layer before them
+        SimulatedNetwork unfolded = NetworkQuantization.of(LayersTest.convNet(40)).floatWeights().floatActivations()
+                .calibrate(cal);
+        assertArrayEquals(TensorAccess.data(LayersTest.convNet(40).forward(x)),
+                TensorAccess.data(unfolded.forward(x)));
+        IllegalArgumentException e = assertThrows(IllegalArgumentException.class,
+                () -> NetworkQuantization.of(net).learnedRounding(Rounding::errorFeedback).calibrate(cal));
+        assertTrue(e.getMessage().startsWith("conv1: learned rounding needs"), e.getMessage());
+        assertEquals(Quantizer.linear(4), NetworkQuantization.of(net)
+                .weightQuantizers(Map.of("conv2", Quantizer.linear(4))).calibrate(cal).weights("conv2").orElseThrow()
+                .spec());
     }
 
     @Test
