@@ -2,6 +2,7 @@ package dev.rungbook.quant;
 
 import dev.rungbook.internal.Codebook1D;
 import dev.rungbook.internal.Fused;
+import dev.rungbook.internal.Lanes;
 import dev.rungbook.internal.MxScale;
 import dev.rungbook.internal.Nf4;
 import dev.rungbook.internal.TensorAccess;
@@ -69,10 +70,7 @@ final class Engine {
 
     /** Refuses NaN and infinities (naming the first); returns the largest magnitude. */
     private float checkFinite() {
-        float amax = 0f;
-        for (int i = 0; i < n; i++) {
-            amax = Math.max(amax, Math.abs(data[i]));
-        }
+        float amax = Lanes.maxAbs(data, 0, n);
         if (!Float.isFinite(amax)) {
             for (int i = 0; i < n; i++) {
                 if (!Float.isFinite(data[i])) {
