@@ -537,6 +537,21 @@ final class Engine {
     }
 
     /**
+     * {@code nearestLevel(mids, v / sc)}, bit for bit, mostly without the division: {@code v * inv} (with
+     * {@code inv = 1 / sc}) is within a few units in the last place of {@code v / sc}, so both fall between the
+     * same midpoints unless one lies that close; only then the division decides.
+     */
+    static int nearestLevel(double[] mids, float v, double sc, double inv) {
+        double y = v * inv;
+        int c = countBelow(mids, y);
+        double margin = 1e-12 * Math.abs(y);
+        if ((c > 0 && y - mids[c - 1] <= margin) || (c < mids.length && mids[c] - y <= margin)) {
+            c = countBelow(mids, v / sc);
+        }
+        return c;
+    }
+
+    /**
      * The midpoints of ascending {@code levels}, padded with {@code +Infinity} to a power-of-two length minus one
      * (the padding is never below a finite value, so counts are unchanged; see {@link #countBelow}).
      */
@@ -585,8 +600,9 @@ final class Engine {
             Range r = q.range.range(buf, 0, m, context(s, true, q.bits, err));
             float sc = levelScale(r);
             scales[s] = sc;
+            double inv = 1 / (double) sc;
             for (int i = 0; i < m; i++) {
-                int c = countBelow(mids, buf[i] / (double) sc);
+                int c = nearestLevel(mids, buf[i], sc, inv);
                 cbuf[i] = c;
                 out[i] = (float) ((double) sc * levels[c]);
             }

@@ -36,6 +36,31 @@ class EngineKernelsTest {
     }
 
     @Test
+    void nearestLevelByTheReciprocalIsTheQuotientsLevel() {
+        SplittableRandom r = new SplittableRandom(43);
+        float[] levels = dev.rungbook.internal.Nf4.levels();
+        double[] mids = Engine.midpoints(levels);
+        for (int k = 0; k < 1_000_000; k++) {
+            double sc = (float) Math.exp(r.nextDouble(-30, 30));
+            float v;
+            if (k % 3 == 0) {
+                // on and next to a midpoint times the scale
+                v = (float) (mids[r.nextInt(levels.length - 1)] * sc);
+                v = k % 9 == 0 ? v : (k % 9 == 3 ? Math.nextUp(v) : Math.nextDown(v));
+            } else {
+                v = (float) (r.nextDouble(-1, 1) * sc);
+            }
+            // Source: the definition, the level of the quotient v / sc (brute-force count of midpoints below it).
+            double y = v / sc;
+            int want = 0;
+            for (int j = 0; j < levels.length - 1; j++) {
+                want += mids[j] < y ? 1 : 0;
+            }
+            assertEquals(want, Engine.nearestLevel(mids, v, sc, 1 / sc), "v " + v + " sc " + sc);
+        }
+    }
+
+    @Test
     void countBelowMatchesALinearCount() {
         SplittableRandom r = new SplittableRandom(42);
         for (int len = 0; len <= 40; len++) {
