@@ -21,7 +21,8 @@ import java.util.SplittableRandom;
  * int4 per channel, published defaults with the given number of iterations, seed 0.
  *
  * <p>Usage: {@code java -cp bench/target/benchmarks.jar dev.rungbook.bench.AdaptiveCurve ROWS ITERATIONS OUT}.
- * The file has one line {@code loss undecided} per iteration, then {@code mse <weight MSE of the result>}.
+ * The file has one line {@code loss undecided} per iteration, then {@code mse <weight MSE of the result>}; the
+ * wall-clock and process CPU seconds of the run are printed.
  */
 public final class AdaptiveCurve {
     private AdaptiveCurve() {
@@ -34,11 +35,17 @@ public final class AdaptiveCurve {
         Tensor w = Tensor.of(gaussian(3, rows * 512, 1 / Math.sqrt(512)), rows, 512).withName("small.weight");
         Calibration cal = Calibration.of(Tensor.of(inputs(4, 1024, 512), 1024, 512));
         RoundingRun[] run = new RoundingRun[1];
+        com.sun.management.OperatingSystemMXBean os = (com.sun.management.OperatingSystemMXBean)
+                java.lang.management.ManagementFactory.getOperatingSystemMXBean();
+        long c0 = os.getProcessCpuTime();
         long t0 = System.nanoTime();
         Quantized q = Quantizer.linear(4).perChannel(0)
                 .rounding(AdaptiveRounding.of(cal).iterations(iterations).onFinish(r -> run[0] = r)).apply(w);
         double s = (System.nanoTime() - t0) / 1e9;
-        System.out.printf("%d x 512, %d iterations: %.2f s (%s)%n", rows, iterations, s, run[0].backend());
+        double cpu = (os.getProcessCpuTime() - c0) / 1e9;
+        // Process CPU time counts every thread (BLAS, fork-join workers) but not the waits for a core.
+        System.out.printf("%d x 512, %d iterations: %.2f s wall, %.2f s process CPU (%s)%n", rows, iterations, s, cpu,
+                run[0].backend());
         StringBuilder b = new StringBuilder();
         double[] loss = run[0].lossHistory();
         double[] undecided = run[0].undecidedHistory();
