@@ -83,6 +83,12 @@ public class QuantizeBench {
     /** The fused kernel: per-channel asymmetric int8 quantize + dequantize + MSE/SQNR sums. */
     @Benchmark
     public double fusedPerChannelInt8() {
+        return fusedSqnr(w, scales, zeroPoints, codes, dequant, sqErr, sqSignal);
+    }
+
+    /** The fused kernel on the {@code N x N} matrix {@code w} (per-channel asymmetric int8); returns the SQNR. */
+    static double fusedSqnr(float[] w, float[] scales, int[] zeroPoints, byte[] codes, float[] dequant,
+            double[] sqErr, double[] sqSignal) {
         Fused.quantizeRows(w, N, N, 8, false, scales, zeroPoints, codes, dequant, sqErr, sqSignal);
         double e = 0;
         double s = 0;

@@ -1,6 +1,5 @@
 package dev.rungbook.bench;
 
-import dev.rungbook.internal.Fused;
 import dev.rungbook.quant.Quantizer;
 import dev.rungbook.tensor.Tensor;
 import java.io.IOException;
@@ -74,16 +73,7 @@ public final class QuantizeCpuTime {
                     System.arraycopy(w, 0, copy, 0, w.length);
                     return copy[copy.length - 1];
                 }),
-                new Case("fusedPerChannelInt8", () -> {
-                    Fused.quantizeRows(w, n, n, 8, false, scales, zps, codes, dq, e, s);
-                    double se = 0;
-                    double ss = 0;
-                    for (int k = 0; k < n; k++) {
-                        se += e[k];
-                        ss += s[k];
-                    }
-                    return 10 * Math.log10(ss / se);
-                }),
+                new Case("fusedPerChannelInt8", () -> QuantizeBench.fusedSqnr(w, scales, zps, codes, dq, e, s)),
                 new Case("apiPerChannelInt8",
                         () -> Quantizer.linear(8).asymmetric().perChannel(0).apply(matrix).error().sqnrDb()),
                 new Case("apiPerChannelInt8AllMetrics",
