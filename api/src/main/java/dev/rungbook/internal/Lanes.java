@@ -48,6 +48,17 @@ public final class Lanes {
     private Lanes() {
     }
 
+    /** Rethrows what a vector method threw: unchecked throwables as they are (it declares no checked ones). */
+    private static RuntimeException unchecked(Throwable e) {
+        if (e instanceof RuntimeException) {
+            return (RuntimeException) e;
+        }
+        if (e instanceof Error) {
+            throw (Error) e;
+        }
+        return new IllegalStateException(e);
+    }
+
     /** True when the reductions run on the Vector API (see the class comment). */
     public static boolean vectorised() {
         return MIN_MAX != null;
@@ -62,10 +73,8 @@ public final class Lanes {
         if (MIN_MAX != null) {
             try {
                 return (float[]) MIN_MAX.invokeExact(v, from, to, lo, hi);
-            } catch (RuntimeException | Error e) {
-                throw e;
             } catch (Throwable e) {
-                throw new IllegalStateException(e);
+                throw unchecked(e);
             }
         }
         return scalarMinMax(v, from, to, lo, hi);
@@ -88,10 +97,8 @@ public final class Lanes {
         if (MAX_ABS != null) {
             try {
                 return (float) MAX_ABS.invokeExact(v, from, to);
-            } catch (RuntimeException | Error e) {
-                throw e;
             } catch (Throwable e) {
-                throw new IllegalStateException(e);
+                throw unchecked(e);
             }
         }
         return scalarMaxAbs(v, from, to);
@@ -104,10 +111,8 @@ public final class Lanes {
         }
         try {
             return (double[]) ERROR_SUMS.invokeExact(w, d, from, to, inv);
-        } catch (RuntimeException | Error e) {
-            throw e;
         } catch (Throwable e) {
-            throw new IllegalStateException(e);
+            throw unchecked(e);
         }
     }
 
