@@ -32,18 +32,6 @@ class ConvEqualizationTest {
         return net.mapWeighted(l -> l.withWeight(q.apply(l.weight()).dequantized()));
     }
 
-    static double maxRelativeDifference(Tensor a, Tensor b) {
-        float[] x = TensorAccess.data(a);
-        float[] y = TensorAccess.data(b);
-        double scale = 0;
-        double diff = 0;
-        for (int i = 0; i < x.length; i++) {
-            scale = Math.max(scale, Math.abs(x[i]));
-            diff = Math.max(diff, Math.abs(x[i] - y[i]));
-        }
-        return diff / scale;
-    }
-
     @Test
     void convolutionPairScalesFollowTheRuleWorkedByHand() {
         // Source: the published CLE scale rule s_i = sqrt(r1_i r2_i) / r2_i, worked by hand.
@@ -80,7 +68,7 @@ class ConvEqualizationTest {
         assertArrayEquals(new float[] {0.5f, -3, 1, 0.0625f}, eq.weightedLayers().get(1).weight().toFloatArray(),
                 1e-6f);
         Tensor x = LayersTest.random(3, 5, 1, 1, 2);
-        assertTrue(maxRelativeDifference(net.forward(x), eq.forward(x)) < 1e-6);
+        assertTrue(EqualizationTest.maxRelativeDifference(net.forward(x), eq.forward(x)) < 1e-6);
     }
 
     @Test
@@ -92,7 +80,7 @@ class ConvEqualizationTest {
         assertTrue(r.largestLastChange() < 1e-6 && r.sweeps() > 1 && r.sweeps() < 100,
                 "sweeps " + r.sweeps() + ", last change " + r.largestLastChange());
         Tensor x = Dataset.load(SAMPLES.resolve("thermal-test.npz")).inputs();
-        double rel = maxRelativeDifference(net.forward(x), r.network().forward(x));
+        double rel = EqualizationTest.maxRelativeDifference(net.forward(x), r.network().forward(x));
         assertTrue(rel < 1e-5, "largest output difference relative to the largest output: " + rel);
         // every pair is balanced afterwards: channel i's range in the first layer equals its range in the second
         for (int p = 0; p < 2; p++) {
@@ -191,9 +179,9 @@ class ConvEqualizationTest {
         Dataset test = Dataset.load(SAMPLES.resolve("thermal-test.npz"));
         Tensor x = test.inputs();
         Network plain = thermal().foldBatchNorm();
-        assertTrue(maxRelativeDifference(plain.forward(x), net.forward(x)) < 1e-5, "the skew keeps the function");
+        assertTrue(EqualizationTest.maxRelativeDifference(plain.forward(x), net.forward(x)) < 1e-5, "the skew keeps the function");
         Network eq = Equalization.apply(net).network();
-        assertTrue(maxRelativeDifference(net.forward(x), eq.forward(x)) < 1e-5);
+        assertTrue(EqualizationTest.maxRelativeDifference(net.forward(x), eq.forward(x)) < 1e-5);
         Tensor ref = net.forward(x);
         for (int bits : new int[] {8, 4}) {
             Quantizer q = Quantizer.linear(bits).perTensor();

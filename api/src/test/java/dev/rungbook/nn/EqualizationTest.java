@@ -43,7 +43,7 @@ class EqualizationTest {
         return Tensor.of(x, n, features);
     }
 
-    private static double maxRelativeDifference(Tensor a, Tensor b) {
+    static double maxRelativeDifference(Tensor a, Tensor b) {
         float[] x = TensorAccess.data(a);
         float[] y = TensorAccess.data(b);
         double scale = 0;
