@@ -19,8 +19,8 @@ class ConvBiasCorrectionTest {
     @Test
     void expectedReluOfAPoolingWindowMatchesSampling() {
         // Source: commons-math3 NormalDistribution sampling (Well19937c, seeded), 10^6 windows of m values each;
-        // tolerance five standard errors. m = 1 is the closed form of expectedReluOfNormal.
-        double[][] cases = {{0.3, 0.7, 4}, {-1, 1.2, 4}, {0.05, 1.1, 9}, {2, 0.5, 2}};
+        // tolerance five standard errors. m = 1 is the closed form of expectedReluOfNormal, sampled here too.
+        double[][] cases = {{0.3, 0.7, 4}, {-1, 1.2, 4}, {0.05, 1.1, 9}, {2, 0.5, 2}, {0.5, 1, 1}, {-1, 2, 1}};
         for (double[] c : cases) {
             NormalDistribution n = new NormalDistribution(new Well19937c(17), c[0], c[1]);
             int m = (int) c[2];
