@@ -48,10 +48,10 @@ public final class BiasCorrection {
     /**
      * {@code E[max(0, z_1, ..., z_m)]} for independent {@code z_k ~ N(beta, gamma^2)}: the expected output of a max
      * pooling window of {@code m} values after a ReLU, if the values of a window were independent. Computed as
-     * {@code integral_0^inf (1 - Phi((t - beta) / gamma)^m) dt} (Simpson's rule, commons-math3). For {@code m = 1} it is
-     * {@link #expectedReluOfNormal}. Neighbouring activations of an image are positively correlated, which makes the
-     * true expectation smaller: it lies between {@code expectedReluOfNormal(beta, gamma)} (fully correlated) and this
-     * value.
+     * {@code integral_0^inf (1 - Phi((t - beta) / gamma)^m) dt} (Simpson's rule, commons-math3). For {@code m = 1}
+     * it is {@link #expectedReluOfNormal}. Neighbouring activations of an image are positively correlated, which
+     * makes the true expectation smaller: it lies between {@code expectedReluOfNormal(beta, gamma)} (fully
+     * correlated) and this value.
      *
      * @throws IllegalArgumentException if {@code m < 1}, {@code gamma} is negative or an argument is not finite
      */
@@ -94,8 +94,9 @@ public final class BiasCorrection {
      * flatten of {@code [C, H, W]} gives each channel's {@code E[x]} to its block of {@code H W} features.
      *
      * <p>The first layer sees the network input: it is corrected only if {@code inputMean} (one value per input
-     * channel or feature, e.g. the data's mean pixel) is given. Layers whose input is not preceded by a batch norm and ReLU keep their bias. Equalized networks
-     * are not supported (their batch-norm statistics would have to be rescaled too).
+     * channel or feature, e.g. the data's mean pixel) is given. Layers whose input is not preceded by a batch norm
+     * and ReLU keep their bias. Equalized networks are not supported (their batch-norm statistics would have to be
+     * rescaled too).
      *
      * @throws IllegalArgumentException if the networks do not match or the input shape does not fit
      */

@@ -41,7 +41,7 @@ public final class Equalization {
     public record Result(Network network, int sweeps, double largestLastChange) {
     }
 
-    /** Equalizes every consecutive pair of weighted layers, sweeping up to 100 times or until scales move by less than 1e-6. */
+    /** Equalizes every consecutive pair of weighted layers, up to 100 sweeps or until scales move by less than 1e-6. */
     public static Result apply(Network net) {
         return apply(net, 100, 1e-6);
     }

@@ -179,7 +179,8 @@ class ConvEqualizationTest {
         Dataset test = Dataset.load(SAMPLES.resolve("thermal-test.npz"));
         Tensor x = test.inputs();
         Network plain = thermal().foldBatchNorm();
-        assertTrue(EqualizationTest.maxRelativeDifference(plain.forward(x), net.forward(x)) < 1e-5, "the skew keeps the function");
+        assertTrue(EqualizationTest.maxRelativeDifference(plain.forward(x), net.forward(x)) < 1e-5,
+                "the skew keeps the function");
         Network eq = Equalization.apply(net).network();
         assertTrue(EqualizationTest.maxRelativeDifference(net.forward(x), eq.forward(x)) < 1e-5);
         Tensor ref = net.forward(x);
