@@ -116,4 +116,23 @@ if fw:
                      f"least 30% of the machine's multiply-add throughput). The integer pass takes "
                      f"**{ratio:.2f}x** the float pass's time ({ratio_med:.2f}x at the medians; target: at most 2x).")
         lines.append("")
+st = load("StudyBench.json")
+if st:
+    one = ms(st["oneSpec"])
+    four = ms(st["fourSpecs"])
+    mib = st["oneSpec"]["params"]["mib"]
+    heap = {}
+    for k in ("oneSpec", "fourSpecs"):
+        path = os.path.join(out, f"StudyBench-heap-{k}.json")
+        if os.path.exists(path):
+            with open(path) as f:
+                heap[k] = json.load(f)
+    lines += [f"## Study of a {mib} MiB bf16 checkpoint (4096 x 4096 tensors), -Xmx1g", "",
+              "| benchmark | ms | peak heap in use (MiB) |", "| --- | ---: | ---: |"]
+    for k, label in [("oneSpec", "1 spec (int8)"),
+                     ("fourSpecs", "4 specs (int8, int4 per-group(1,128), nf4, fp8-e4m3 per-channel(0))")]:
+        h = heap.get(k, {}).get("peak_heap_mib")
+        lines.append(f"| {label} | {ms(st[k]):.1f} | {'' if h is None else f'{h:.0f}'} |")
+    lines += ["", f"Four specs take **{four / one:.2f}x** the time of one (target: at most 2.5x); both finish under "
+              f"-Xmx1g (target: peak heap under 1 GiB).", ""]
 print("\n".join(lines))

@@ -65,7 +65,7 @@ def fuzz_log_figures(path):
     itself; `./rungbook fuzz` stops it with timeout(1), so the last status line gives a lower bound on executions.
     """
     text = open(path, encoding="utf-8", errors="replace").read()
-    header = re.search(r"^# rungbook fuzz (\S+) minutes=(\d+) start=(\S+) end=(\S+) rc=(\d+)", text, re.M)
+    header = re.search(r"# rungbook fuzz (\S+) minutes=(\d+) start=(\S+) end=(\S+) rc=(\d+)", text, re.M)
     if not header:
         return None
     done = re.search(r"Done (\d+) runs in (\d+) second", text)
@@ -81,7 +81,8 @@ def fuzz_log_figures(path):
     findings = len(re.findall(r"^== Java Exception:|^==\d+== ERROR: libFuzzer", text, re.M))
     return {"reader": header.group(1), "date": start.strftime("%Y-%m-%d"), "start": header.group(3),
             "seconds": str(int((end - start).total_seconds())), "executions": str(executions),
-            "findings": str(findings), "source": os.path.relpath(path, ROOT)}
+            "findings": str(findings),
+            "source": "log of ./rungbook fuzz, %s (not in git)" % os.path.relpath(path, ROOT)}
 
 
 def update_fuzz_record():
@@ -101,7 +102,8 @@ def update_fuzz_record():
 
 
 def fuzz_section(rows):
-    out = ["| reader | runs | last run (UTC) | minutes | executions | findings | fixes |", "|---|---|---|---|---|---|---|"]
+    out = ["| reader | runs | last run (UTC) | minutes | executions | findings | fixes |",
+           "|---|---|---|---|---|---|---|"]
     for key, label in READERS:
         mine = [r for r in rows if r["reader"] == key]
         if not mine:
@@ -173,6 +175,8 @@ def numeric_section(path):
     refused = sum(int(r["refused"]) for r in rows)
     out = []
     status = surefire("NumericHostilityTest")
+    if status is not None and status[0] < handled + refused:
+        status = None  # the report is of a partial run (one method), not of the run that wrote the matrix
     learned = surefire("LearnedRoundingHostilityTest")
     out.append(para("`NumericHostilityTest` ran %d (spec, input) cells: %d handled, %d refused with an "
                "IllegalArgumentException naming the tensor and the problem%s." % (
@@ -226,6 +230,8 @@ def writers_section(path):
     for r in rows:
         out.append("| %s | %s |" % (md(r["case"]), md(r["outcome"])))
     status = surefire("WriterKillTest")
+    if status is not None and status[0] < len(rows):
+        status = None  # a partial run's report
     out.append("")
     out.append(para("`WriterKillTest` starts the writer in a separate JVM and kills it with SIGKILL "
                "(`Process.destroyForcibly`)%s. A killed writer leaves its temporary file `.<target>.<random>.tmp` "
@@ -286,7 +292,7 @@ def main():
         ("kernel", os.path.join(KERNEL, "kernel-faults.txt"), kernel_section),
     ]
     for name, src, build in sources:
-        if os.path.exists(src):
+        if os.path.exists(src) and os.path.getsize(src) > 0:
             page = replace_section(page, name, build(src))
             print("%-8s from %s" % (name, os.path.relpath(src, ROOT)))
         else:

@@ -48,12 +48,32 @@ def value(kc, code):
     return None
 
 
+def kernel_pid(km):
+    """The kernel process id, from the kernel manager's launcher (jupyter_client 7 and later)."""
+    proc = getattr(getattr(km, "provisioner", None), "process", None) or getattr(km, "kernel", None)
+    return getattr(proc, "pid", None)
+
+
+def gone(pid, seconds):
+    """Whether process pid has ended (reaped or a zombie) within seconds."""
+    deadline = time.time() + seconds
+    while time.time() < deadline:
+        try:
+            with open("/proc/%d/stat" % pid) as f:
+                if f.read().split(")")[-1].split()[0] == "Z":
+                    return True
+        except FileNotFoundError:
+            return True
+        time.sleep(0.2)
+    return False
+
+
 def main():
     km, kc = start_new_kernel(kernel_name="rungbook", startup_timeout=120)
     try:
-        # Flood: 10^5 lines, all of them, in order, then the idle status.
-        n = 100_000
-        reply, msgs = execute(kc, 'for (int i = 0; i < %d; i++) System.out.println("line " + i);' % n, timeout=120)
+        # Flood: 10^6 lines, all of them, in order, then the idle status.
+        n = 1_000_000
+        reply, msgs = execute(kc, 'for (int i = 0; i < %d; i++) System.out.println("line " + i);' % n, timeout=600)
         text = "".join(m["content"]["text"] for m in msgs if m["msg_type"] == "stream" and m["content"]["name"] == "stdout")
         lines = text.splitlines()
         streams = sum(1 for m in msgs if m["msg_type"] == "stream")
@@ -94,6 +114,36 @@ def main():
                 pass
             check("signature: %s signature is dropped" % label, not got, str(got)[:300])
         check("signature: kernel still answers", value(kc, "40 + 2") == "42")
+
+        # The same on the control channel: a forged shutdown_request must not stop the kernel.
+        for label, key in (("bad", b"not-the-key"), ("missing", b"")):
+            rogue = Session(key=key, session=kc.session.session, username="intruder")
+            rogue.send(kc.control_channel.socket, "shutdown_request", content={"restart": False})
+            time.sleep(1.0)
+            check("signature: %s signature on control is dropped, the kernel lives" % label,
+                  km.is_alive() and value(kc, "40 + 1") == "41")
+
+        # A correctly signed message whose content part is not JSON is dropped; the kernel keeps serving.
+        header = kc.session.msg_header("execute_request")
+        parts = [kc.session.pack(header), b"{}", b"{}", b"{not json"]
+        kc.shell_channel.socket.send_multipart([b"<IDS|MSG>", kc.session.sign(parts)] + parts)
+        check("malformed JSON in a signed message: kernel answers the next message", value(kc, "39 + 3") == "42")
+
+        # A correctly signed request from another session is answered like any other, and the kernel goes on.
+        other = Session(key=kc.session.key, username="colleague")
+        other.send(kc.shell_channel.socket, "kernel_info_request", content={})
+        replies = []
+        deadline = time.time() + 30
+        while time.time() < deadline and not replies:
+            try:
+                r = kc.get_shell_msg(timeout=1)
+                if r["parent_header"].get("session") == other.session:
+                    replies.append(r)
+            except Exception:
+                pass
+        check("another session's request is answered", replies and replies[0]["msg_type"] == "kernel_info_reply",
+              str(replies)[:300])
+        check("after another session: kernel still answers", value(kc, "38 + 4") == "42")
 
         # Malformed messages (too few frames, no delimiter) are dropped whole; the next message is not swallowed.
         kc.shell_channel.socket.send_multipart([b"<IDS|MSG>", b"0" * 64])
@@ -158,7 +208,8 @@ def main():
             check("interrupt: %s stops (%.1fs)" % (label, took), ok, str(errors)[:300])
             check("interrupt: kernel answers after %s" % label, value(kc, "kept + 1") == "6")
 
-        # A restart (shutdown_request with restart) gives a clean session in a new process.
+        # A restart (shutdown_request with restart) gives a clean session in a new process; the old one is gone.
+        old_pid = kernel_pid(km)
         km.restart_kernel(now=False)
         kc.wait_for_ready(timeout=120)
         reply, msgs = execute(kc, "kept")
@@ -166,6 +217,11 @@ def main():
         check("restart: clean session", reply["status"] == "error" and errors and errors[0]["ename"] == "CompileError",
               str(errors)[:300])
         check("restart: kernel answers", value(kc, "1 + 1") == "2")
+        check("restart: the old kernel process has exited", old_pid is not None and gone(old_pid, 30), str(old_pid))
+        # A shutdown request ends the kernel process (no stray JVM left behind).
+        pid = kernel_pid(km)
+        kc.shutdown()
+        check("shutdown: the kernel process exits", pid is not None and gone(pid, 30), str(pid))
     finally:
         kc.stop_channels()
         km.shutdown_kernel(now=True)

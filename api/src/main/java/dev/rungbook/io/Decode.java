@@ -141,6 +141,13 @@ final class Decode {
                 }
                 break;
             }
+            case U16: {
+                var l = src.asShortBuffer();
+                for (int i = 0; i < n; i++) {
+                    dst[off + i] = l.get(i) & 0xFFFF;
+                }
+                break;
+            }
             case I8:
                 for (int i = 0; i < n; i++) {
                     dst[off + i] = src.get(src.position() + i);

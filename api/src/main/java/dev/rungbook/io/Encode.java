@@ -81,6 +81,11 @@ final class Encode {
                         buf.putShort((short) integer(file, name, t, v, i, Short.MIN_VALUE, Short.MAX_VALUE + 1.0));
                     }
                     break;
+                case U16:
+                    for (int i = from; i < to; i++) {
+                        buf.putShort((short) integer(file, name, t, v, i, 0, 65536));
+                    }
+                    break;
                 case I8:
                     for (int i = from; i < to; i++) {
                         buf.put((byte) integer(file, name, t, v, i, Byte.MIN_VALUE, Byte.MAX_VALUE + 1.0));

@@ -11,6 +11,8 @@ import java.nio.ByteOrder;
 import java.nio.channels.FileChannel;
 import java.nio.charset.StandardCharsets;
 import java.nio.file.Path;
+import java.util.ArrayList;
+import java.util.List;
 import java.util.Map;
 import java.util.SortedMap;
 
@@ -26,6 +28,20 @@ final class SafetensorsWriter {
     }
 
     static byte[] header(SortedMap<String, Tensor> tensors, Map<String, String> metadata) {
+        List<TensorInfo> slots = new ArrayList<>();
+        for (Map.Entry<String, Tensor> e : tensors.entrySet()) {
+            int[] shape = e.getValue().shape();
+            long[] ls = new long[shape.length];
+            for (int k = 0; k < shape.length; k++) {
+                ls[k] = shape[k];
+            }
+            slots.add(TensorInfo.of(e.getKey(), e.getValue().dtype(), ls));
+        }
+        return header(slots, metadata);
+    }
+
+    /** The header for tensors laid out contiguously in the order of {@code slots}. */
+    static byte[] header(List<TensorInfo> slots, Map<String, String> metadata) {
         JsonObject root = new JsonObject();
         if (!metadata.isEmpty()) {
             JsonObject m = new JsonObject();
@@ -33,22 +49,21 @@ final class SafetensorsWriter {
             root.add(SafetensorsReader.METADATA_KEY, m);
         }
         long offset = 0;
-        for (Map.Entry<String, Tensor> e : tensors.entrySet()) {
-            Tensor t = e.getValue();
+        for (TensorInfo slot : slots) {
             JsonObject o = new JsonObject();
-            o.addProperty("dtype", t.dtype().safetensorsName());
+            o.addProperty("dtype", slot.dtype().safetensorsName());
             JsonArray shape = new JsonArray();
-            for (int d : t.shape()) {
+            for (long d : slot.shape()) {
                 shape.add(d);
             }
             o.add("shape", shape);
-            long bytes = (long) t.size() * t.dtype().byteSize();
+            long bytes = slot.byteSize();
             JsonArray offs = new JsonArray();
             offs.add(offset);
             offs.add(offset + bytes);
             o.add("data_offsets", offs);
             offset += bytes;
-            root.add(e.getKey(), o);
+            root.add(slot.name(), o);
         }
         byte[] json = GSON.toJson(root).getBytes(StandardCharsets.UTF_8);
         int padded = (json.length + 8 + 7) / 8 * 8 - 8;
@@ -61,15 +76,19 @@ final class SafetensorsWriter {
 
     static void write(Path target, FileChannel ch, SortedMap<String, Tensor> tensors, Map<String, String> metadata)
             throws IOException {
-        byte[] header = header(tensors, metadata);
+        writeHeader(target, ch, header(tensors, metadata));
+        for (Map.Entry<String, Tensor> e : tensors.entrySet()) {
+            Encode.encode(target, e.getKey(), e.getValue(), piece -> writeAll(ch, piece));
+        }
+    }
+
+    /** Writes a header made by {@link #header}, refusing one over the limit readers accept. */
+    static void writeHeader(Path target, FileChannel ch, byte[] header) throws IOException {
         if (header.length - 8 > SafetensorsReader.HEADER_LIMIT) {
             throw new IllegalArgumentException(target + ": the header would be " + (header.length - 8)
                     + " bytes, over the " + SafetensorsReader.HEADER_LIMIT + "-byte limit readers accept");
         }
         writeAll(ch, ByteBuffer.wrap(header));
-        for (Map.Entry<String, Tensor> e : tensors.entrySet()) {
-            Encode.encode(target, e.getKey(), e.getValue(), piece -> writeAll(ch, piece));
-        }
     }
 
     static void writeAll(FileChannel ch, ByteBuffer b) throws IOException {

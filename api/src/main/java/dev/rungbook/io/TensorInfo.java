@@ -22,6 +22,27 @@ public final class TensorInfo {
         this.elementCount = elementCount;
     }
 
+    /**
+     * A description of a tensor to be written (see {@link StreamingWriter}).
+     *
+     * @throws IllegalArgumentException for a negative dimension
+     * @throws ArithmeticException if the element or byte count overflows a {@code long}
+     */
+    public static TensorInfo of(String name, DType dtype, long... shape) {
+        Objects.requireNonNull(name, "name");
+        Objects.requireNonNull(dtype, "dtype");
+        long count = 1;
+        for (long d : shape) {
+            if (d < 0) {
+                throw new IllegalArgumentException("tensor '" + name + "': negative dimension in shape "
+                        + Arrays.toString(shape));
+            }
+            count = Math.multiplyExact(count, d);
+        }
+        Math.multiplyExact(count, (long) dtype.byteSize());
+        return new TensorInfo(name, dtype, shape, count);
+    }
+
     /** The tensor's name in the checkpoint. */
     public String name() {
         return name;

@@ -61,12 +61,7 @@ public final class Conv2d implements WeightedLayer {
      * practice before ReLU) with a seeded generator, biases zero.
      */
     public static Conv2d initial(String name, int in, int out, int kernel, int stride, int padding, long seed) {
-        Random r = new Random(seed);
-        float[] w = new float[out * in * kernel * kernel];
-        double sd = Math.sqrt(2.0 / (in * kernel * kernel));
-        for (int i = 0; i < w.length; i++) {
-            w[i] = (float) (r.nextGaussian() * sd);
-        }
+        float[] w = Linear.heNormal(new Random(seed), out * in * kernel * kernel, in * kernel * kernel);
         return new Conv2d(name, Tensor.of(w, out, in, kernel, kernel), Tensor.of(new float[out], out), stride,
                 padding);
     }
@@ -172,7 +167,7 @@ public final class Conv2d implements WeightedLayer {
             } else if (col == null) {
                 col = new float[p * k];
             }
-            im2col(x, s, is, os, col);
+            im2col(x, s, is, os, col, false);
             Dense.matmulTransposedB(w, col, ys, out, k, p);
             int base = s * out * p;
             for (int o = 0; o < out; o++) {
@@ -185,37 +180,12 @@ public final class Conv2d implements WeightedLayer {
         return y;
     }
 
-    /** Writes sample {@code s}'s receptive fields as rows: {@code col[q, (c, u, v)]}, zero where padded. */
-    private void im2col(float[] x, int s, int[] is, int[] os, float[] col) {
-        int c = is[1];
-        int h = is[2];
-        int wd = is[3];
-        int kh = kernelHeight();
-        int kw = kernelWidth();
-        int k = c * kh * kw;
-        int oh = os[2];
-        int ow = os[3];
-        for (int i = 0; i < oh; i++) {
-            for (int j = 0; j < ow; j++) {
-                int row = (i * ow + j) * k;
-                int t = 0;
-                for (int ch = 0; ch < c; ch++) {
-                    int plane = (s * c + ch) * h;
-                    for (int u = 0; u < kh; u++) {
-                        int yi = i * stride + u - padding;
-                        for (int v = 0; v < kw; v++) {
-                            int xj = j * stride + v - padding;
-                            col[row + t++] = yi < 0 || yi >= h || xj < 0 || xj >= wd ? 0f
-                                    : x[(plane + yi) * wd + xj];
-                        }
-                    }
-                }
-            }
-        }
-    }
-
-    /** Adds the rows of {@code gcol} back onto sample {@code s} of {@code gx} (the adjoint of {@link #im2col}). */
-    private void col2im(float[] gcol, int s, int[] is, int[] os, float[] gx) {
+    /**
+     * Writes sample {@code s}'s receptive fields of {@code x} as rows {@code col[q, (c, u, v)]} (zero where padded);
+     * with {@code adjoint} instead adds the rows of {@code col} back onto sample {@code s} of {@code x} (col2im, the
+     * transpose, for the input gradient).
+     */
+    private void im2col(float[] x, int s, int[] is, int[] os, float[] col, boolean adjoint) {
         int c = is[1];
         int h = is[2];
         int wd = is[3];
@@ -230,12 +200,16 @@ public final class Conv2d implements WeightedLayer {
                     int plane = (s * c + ch) * h;
                     for (int u = 0; u < kh; u++) {
                         int yi = i * stride + u - padding;
-                        for (int v = 0; v < kw; v++) {
+                        for (int v = 0; v < kw; v++, t++) {
                             int xj = j * stride + v - padding;
-                            if (yi >= 0 && yi < h && xj >= 0 && xj < wd) {
-                                gx[(plane + yi) * wd + xj] += gcol[row + t];
+                            boolean inside = yi >= 0 && yi < h && xj >= 0 && xj < wd;
+                            if (adjoint) {
+                                if (inside) {
+                                    x[(plane + yi) * wd + xj] += col[row + t];
+                                }
+                            } else {
+                                col[row + t] = inside ? x[(plane + yi) * wd + xj] : 0f;
                             }
-                            t++;
                         }
                     }
                 }
@@ -277,7 +251,7 @@ public final class Conv2d implements WeightedLayer {
                     if (needInput) {
                         Arrays.fill(gcol, 0f);
                         Dense.addMatmulTransposedA(gs, w, gcol, out, p, k);
-                        col2im(gcol, s, is, os, gx);
+                        im2col(gx, s, is, os, gcol, true);
                     }
                 }
                 addBiasGradient(g, n, out, p);

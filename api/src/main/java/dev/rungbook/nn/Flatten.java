@@ -33,7 +33,7 @@ public final class Flatten implements Layer {
     }
 
     Node node() {
-        return new Node.Stateless(this) {
+        return new Node.ParameterFree(this) {
             private int[] in;
 
             @Override

@@ -22,7 +22,7 @@ public final class Identity implements Layer {
     }
 
     Node node() {
-        return new Node.Stateless(this) {
+        return new Node.ParameterFree(this) {
             @Override
             Act forward(Act a, boolean training) {
                 return a;

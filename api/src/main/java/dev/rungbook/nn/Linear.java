@@ -34,6 +34,25 @@ public final class Linear implements WeightedLayer {
         this.bias = bias;
     }
 
+    /**
+     * A freshly initialised layer: weights drawn from N(0, 2 / in) (He initialisation, common practice before ReLU)
+     * with a seeded generator, biases zero.
+     */
+    public static Linear initial(String name, int in, int out, long seed) {
+        float[] w = heNormal(new java.util.Random(seed), out * in, in);
+        return new Linear(name, Tensor.of(w, out, in), Tensor.of(new float[out], out));
+    }
+
+    /** {@code n} values drawn in order from N(0, 2 / fanIn) (He initialisation) with {@code r}. */
+    static float[] heNormal(java.util.Random r, int n, int fanIn) {
+        float[] w = new float[n];
+        double sd = Math.sqrt(2.0 / fanIn);
+        for (int i = 0; i < n; i++) {
+            w[i] = (float) (r.nextGaussian() * sd);
+        }
+        return w;
+    }
+
     @Override
     public String name() {
         return name;
@@ -81,13 +100,18 @@ public final class Linear implements WeightedLayer {
     public Tensor forward(Tensor batch) {
         int in = inFeatures();
         int out = outFeatures();
-        if (batch.rank() != 2 || batch.dim(1) != in) {
-            throw new IllegalArgumentException(name + ": input shape " + Arrays.toString(batch.shape())
-                    + " does not fit weight shape " + Arrays.toString(weight.shape()) + " (expected [N, " + in + "])");
-        }
+        checkInput(batch.shape());
         int n = batch.dim(0);
         float[] y = affine(TensorAccess.data(batch), n, TensorAccess.data(weight), TensorAccess.data(bias), in, out);
         return TensorAccess.wrap(y, new int[] {n, out}, DType.F32, null);
+    }
+
+    private void checkInput(int[] shape) {
+        if (shape.length != 2 || shape[1] != inFeatures()) {
+            throw new IllegalArgumentException(name + ": input shape " + Arrays.toString(shape)
+                    + " does not fit weight shape " + Arrays.toString(weight.shape()) + " (expected [N, "
+                    + inFeatures() + "])");
+        }
     }
 
     /** {@code y[n x out] = x[n x in] w[out x in]^T + b}, as a new array. */
@@ -106,11 +130,7 @@ public final class Linear implements WeightedLayer {
 
             @Override
             Act forward(Act a, float[] w, boolean training) {
-                if (a.shape().length != 2 || a.shape()[1] != in) {
-                    throw new IllegalArgumentException(name + ": input shape " + Arrays.toString(a.shape())
-                            + " does not fit weight shape " + Arrays.toString(Linear.this.weight.shape()) + " (expected [N, "
-                            + in + "])");
-                }
+                checkInput(a.shape());
                 x = a.v();
                 return new Act(affine(x, a.batch(), w, bias.value, in, out), new int[] {a.batch(), out});
             }

@@ -346,6 +346,11 @@ public final class Network {
         return Evaluation.of(this, data);
     }
 
+    /** The index of the largest value in each row of logits shaped {@code [N, classes]} (the first on ties). */
+    public static int[] topClass(Tensor logits) {
+        return Evaluation.argmax(logits);
+    }
+
     /** The share of samples whose prediction equals the label. */
     public double accuracy(Dataset data) {
         int[] p = predict(data.inputs());

@@ -90,11 +90,11 @@ abstract class Node {
                 + "flatten and pooling layers");
     }
 
-    /** A stateless element-wise or reshaping node whose backward only needs the input or output it saw. */
-    abstract static class Stateless extends Node {
+    /** A node without parameters (activations, reshaping, pooling): its layer never changes. */
+    abstract static class ParameterFree extends Node {
         private final Layer layer;
 
-        Stateless(Layer layer) {
+        ParameterFree(Layer layer) {
             this.layer = layer;
         }
 

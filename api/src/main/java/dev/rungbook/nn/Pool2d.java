@@ -110,7 +110,7 @@ public final class Pool2d implements Layer {
     }
 
     Node node() {
-        return new Node.Stateless(this) {
+        return new Node.ParameterFree(this) {
             private int[] in;
             private int[] out;
             private int[] argmax;

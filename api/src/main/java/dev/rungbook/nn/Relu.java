@@ -30,7 +30,7 @@ public final class Relu implements Layer {
 
     /** The training node: the gradient passes where the output is positive. */
     Node node() {
-        return new Node.Stateless(this) {
+        return new Node.ParameterFree(this) {
             private float[] y;
 
             @Override

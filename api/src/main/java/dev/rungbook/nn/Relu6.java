@@ -36,7 +36,7 @@ public final class Relu6 implements Layer {
 
     /** The training node: the gradient passes where {@code 0 < x < 6}. */
     Node node() {
-        return new Node.Stateless(this) {
+        return new Node.ParameterFree(this) {
             private float[] x;
 
             @Override

@@ -20,7 +20,8 @@ import java.util.Set;
  * full-precision weight is put through the quantizer and the forward pass uses the dequantized result; the backward
  * pass hands the gradient with respect to the quantized weight straight to the full-precision copy (the
  * straight-through estimator, Bengio et al. 2013), which the optimiser updates. {@link #trainedTernary(double)}
- * instead learns ternary weights with separate positive and negative scales (TTQ, Zhu et al. 2017). Biases stay in
+ * instead learns ternary weights with separate positive and negative scales (TTQ, Zhu et al. 2017), and
+ * {@link #learnedStepSize(int, boolean)} learns the scale of a uniform grid with the weights (LSQ). Biases stay in
  * float (they become int32 in integer execution). Fold batch norms into their layers first
  * ({@link Network#foldBatchNorm()}) so that the weights trained are the ones deployed.
  *
@@ -44,6 +45,8 @@ public final class Trainer {
         Progress progress = Progress.silent();
         Quantizer quantizer;
         double ternaryThreshold = Double.NaN;
+        int stepBits;
+        boolean stepPerChannel;
         Set<String> keepFloat = Set.of();
     }
 
@@ -65,6 +68,8 @@ public final class Trainer {
         n.progress = f.progress;
         n.quantizer = f.quantizer;
         n.ternaryThreshold = f.ternaryThreshold;
+        n.stepBits = f.stepBits;
+        n.stepPerChannel = f.stepPerChannel;
         n.keepFloat = f.keepFloat;
         change.accept(n);
         return new Trainer(n);
@@ -142,6 +147,7 @@ public final class Trainer {
         return with(x -> {
             x.quantizer = q;
             x.ternaryThreshold = Double.NaN;
+            x.stepBits = 0;
         });
     }
 
@@ -162,6 +168,30 @@ public final class Trainer {
         return with(x -> {
             x.quantizer = null;
             x.ternaryThreshold = t;
+            x.stepBits = 0;
+        });
+    }
+
+    /**
+     * Quantization-aware training with learned scales: learned step size quantization (Esser et al. 2020). Weights
+     * become signed {@code bits}-bit codes {@code clamp(round(w / s), -2^(b-1), 2^(b-1) - 1)} times a step {@code s}
+     * (one per tensor, or per output channel) that is trained with the weights, starting at {@code 2 mean|w| /
+     * sqrt(Qp)}. The weight gradient is the straight-through one inside the code range and 0 where clipped; the step
+     * gradient is {@code round(w/s) - w/s} inside and {@code -Qn} or {@code Qp} where clipped, scaled by
+     * {@code 1 / sqrt(N Qp)}.
+     *
+     * @param bits code width, 2 to 16
+     * @param perChannel one step per output channel (axis 0) instead of one per tensor
+     */
+    public Trainer learnedStepSize(int bits, boolean perChannel) {
+        if (bits < 2 || bits > 16) {
+            throw new IllegalArgumentException("learned step size bits must be in [2, 16], got " + bits);
+        }
+        return with(x -> {
+            x.quantizer = null;
+            x.ternaryThreshold = Double.NaN;
+            x.stepBits = bits;
+            x.stepPerChannel = perChannel;
         });
     }
 
@@ -204,11 +234,7 @@ public final class Trainer {
         for (int i = 0; i + 1 < widths.length; i++) {
             int in = widths[i];
             int out = widths[i + 1];
-            float[] w = new float[out * in];
-            double sd = Math.sqrt(2.0 / in);
-            for (int j = 0; j < w.length; j++) {
-                w[j] = (float) (r.nextGaussian() * sd);
-            }
+            float[] w = Linear.heNormal(r, out * in, in);
             layers.add(new Linear("fc" + (i + 1), Tensor.of(w, out, in), Tensor.of(new float[out], out)));
             if (i + 2 < widths.length) {
                 layers.add(new Relu("relu" + (i + 1)));
@@ -231,6 +257,9 @@ public final class Trainer {
         }
         if (!Double.isNaN(f.ternaryThreshold)) {
             return new TrainedTernary(f.ternaryThreshold, l.name());
+        }
+        if (f.stepBits > 0) {
+            return new LearnedStepSize(f.stepBits, f.stepPerChannel, l.name(), l.weight().dim(0));
         }
         return null;
     }
@@ -270,7 +299,8 @@ public final class Trainer {
         long steps = f.epochs * perEpoch;
         long step = 0;
         double[] epochLoss = new double[f.epochs];
-        String task = (f.quantizer != null || !Double.isNaN(f.ternaryThreshold) ? "quantization-aware training "
+        boolean qat = f.quantizer != null || !Double.isNaN(f.ternaryThreshold) || f.stepBits > 0;
+        String task = (qat ? "quantization-aware training "
                 : "training ") + start.weightedLayers().size() + "-layer network";
         try {
             for (int epoch = 0; epoch < f.epochs; epoch++) {

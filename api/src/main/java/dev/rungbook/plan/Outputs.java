@@ -34,7 +34,7 @@ final class Outputs {
         this.reference = TensorAccess.data(z);
         this.n = z.dim(0);
         this.k = z.dim(1);
-        this.referenceTop = argmax(reference, n, k);
+        this.referenceTop = Network.topClass(z);
         if (this.labels != null) {
             for (int i = 0; i < n; i++) {
                 if (this.labels[i] >= k) {
@@ -80,7 +80,7 @@ final class Outputs {
             double d = (double) z[i] - reference[i];
             se += d * d;
         }
-        int[] top = argmax(z, n, k);
+        int[] top = Network.topClass(logits);
         return new Error(n == 0 ? 0 : se / z.length, klDivergence(reference, z, n, k),
                 n == 0 ? Double.NaN : hits(top, referenceTop) / (double) n,
                 labels == null || n == 0 ? Double.NaN : hits(top, labels) / (double) n);
@@ -117,21 +117,6 @@ final class Outputs {
             s += Math.exp(z[o + j] - max);
         }
         return max + Math.log(s);
-    }
-
-    /** The index of the largest value per row (the first on ties), as {@code Network.predict} does. */
-    static int[] argmax(float[] z, int n, int k) {
-        int[] out = new int[n];
-        for (int i = 0; i < n; i++) {
-            int best = 0;
-            for (int j = 1; j < k; j++) {
-                if (z[i * k + j] > z[i * k + best]) {
-                    best = j;
-                }
-            }
-            out[i] = best;
-        }
-        return out;
     }
 
     private static int hits(int[] a, int[] b) {

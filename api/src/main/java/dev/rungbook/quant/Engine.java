@@ -51,20 +51,36 @@ final class Engine {
     // ------------------------------------------------------------------ validation
 
     private int resolveAxis() {
-        Granularity g = q.granularity;
+        String problem = axisProblem(shape, q.granularity);
+        if (problem != null) {
+            throw refuse(problem);
+        }
+        return resolvedAxis(shape, q.granularity);
+    }
+
+    /** The axis {@code g} works on in a tensor of {@code shape} (-1 per tensor); call after {@link #axisProblem}. */
+    static int resolvedAxis(int[] shape, Granularity g) {
         if (g.kind() == Granularity.Kind.TENSOR) {
             return -1;
         }
-        int axis = g.axis() == -1 ? shape.length - 1 : g.axis();
+        return g.axis() == -1 ? shape.length - 1 : g.axis();
+    }
+
+    /** Why {@code g} does not fit a tensor of {@code shape}, or null if it does. */
+    static String axisProblem(int[] shape, Granularity g) {
+        if (g.kind() == Granularity.Kind.TENSOR) {
+            return null;
+        }
+        int axis = resolvedAxis(shape, g);
         if (axis < 0 || axis >= shape.length) {
-            throw refuse("axis " + (g.axis() == -1 ? "-1 (last)" : Integer.toString(g.axis()))
-                    + " is out of range for shape " + Arrays.toString(shape));
+            return "axis " + (g.axis() == -1 ? "-1 (last)" : Integer.toString(g.axis()))
+                    + " is out of range for shape " + Arrays.toString(shape);
         }
         if (g.kind() == Granularity.Kind.GROUP && shape[axis] % g.groupSize() != 0) {
-            throw refuse("group size " + g.groupSize() + " does not divide dimension " + axis + " of shape "
-                    + Arrays.toString(shape));
+            return "group size " + g.groupSize() + " does not divide dimension " + axis + " of shape "
+                    + Arrays.toString(shape);
         }
-        return axis;
+        return null;
     }
 
     /** Refuses NaN and infinities (naming the first); returns the largest magnitude. */
@@ -308,12 +324,13 @@ final class Engine {
         double z = zF;
         double qmin = q.qmin();
         double qmax = q.qmax();
+        // The value is what the integer code stands for: rint can give -0.0, whose sign a code cannot carry.
         if (rr == Rounding.nearest()) {
             for (int i = 0; i < m; i++) {
                 double c = Math.rint(v[i] / sc + z);
                 c = c < qmin ? qmin : (c > qmax ? qmax : c);
                 codes[i] = (int) c;
-                deq[i] = (float) (sc * (c - z));
+                deq[i] = (float) (sc * (codes[i] - z));
             }
         } else {
             int[] idx = indicesOf(s);
@@ -322,7 +339,7 @@ final class Engine {
                 double c = rr.round(onLevel(u, u + z), idx[i]);
                 c = c < qmin ? qmin : (c > qmax ? qmax : c);
                 codes[i] = (int) c;
-                deq[i] = (float) (sc * (c - z));
+                deq[i] = (float) (sc * (codes[i] - z));
             }
         }
     }
@@ -640,7 +657,7 @@ final class Engine {
                     double c = Math.rint(buf[i] / sc * 64.0);
                     c = c < -128 ? -128 : (c > 127 ? 127 : c);
                     cbuf[i] = (int) c;
-                    out[i] = (float) (sc * c / 64.0);
+                    out[i] = (float) (sc * cbuf[i] / 64.0);
                 }
             } else {
                 for (int i = 0; i < m; i++) {

@@ -460,6 +460,15 @@ public final class Quantizer {
         return r;
     }
 
+    /**
+     * Why this spec cannot quantize a tensor of {@code shape} (its axis is out of range, or its group size does not
+     * divide the axis), or empty if the shape fits. Checks only the shape: {@link #apply} can still refuse values
+     * (NaN, too few distinct values for a codebook).
+     */
+    public java.util.Optional<String> shapeProblem(int... shape) {
+        return java.util.Optional.ofNullable(Engine.axisProblem(shape.clone(), granularity));
+    }
+
     // ---------------------------------------------------------------- accessors
 
     /** The granularity. */

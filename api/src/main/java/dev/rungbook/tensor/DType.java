@@ -32,6 +32,8 @@ public enum DType {
     I8(1, false, "I8", "i1"),
     /** Unsigned 8-bit integer. */
     U8(1, false, "U8", "u1"),
+    /** Unsigned 16-bit integer. */
+    U16(2, false, "U16", "u2"),
     /** Boolean, one byte per value (0 or 1). */
     BOOL(1, false, "BOOL", "b1");
 

@@ -52,7 +52,8 @@ class LayersTest {
             Tensor b = random(k[4], k[4]);
             Tensor y = new Conv2d("c", w, b, k[7], k[8]).forward(x);
             double[] ref = Reference.conv(Reference.toDouble(x.toFloatArray()), x.shape(),
-                    Reference.toDouble(w.toFloatArray()), w.shape(), Reference.toDouble(b.toFloatArray()), k[7], k[8]).v();
+                    Reference.toDouble(w.toFloatArray()), w.shape(), Reference.toDouble(b.toFloatArray()), k[7],
+                    k[8]).v();
             float[] got = y.toFloatArray();
             assertEquals(ref.length, got.length);
             for (int i = 0; i < ref.length; i++) {

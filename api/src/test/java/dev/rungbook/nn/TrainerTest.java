@@ -95,6 +95,10 @@ class TrainerTest {
         Network b = t.train(Trainer.initialMlp(1, 2, 8, 2), d);
         assertTrue(a.accuracy(d) > 0.95, "accuracy " + a.accuracy(d));
         assertEquals(a.parameters(), b.parameters());
+        Network s = Trainer.sgd(0.05).momentum(0.9).epochs(15).batchSize(32).seed(1)
+                .train(Trainer.initialMlp(1, 2, 8, 2), d);
+        assertTrue(s.accuracy(d) > 0.95, "SGD accuracy " + s.accuracy(d));
+        assertThrows(IllegalArgumentException.class, () -> Trainer.adam(1e-3).momentum(0.9));
     }
 
     @Test

@@ -12,6 +12,8 @@ import dev.rungbook.progress.OperationInterruptedException;
 import dev.rungbook.quant.Quantizer;
 import dev.rungbook.tensor.Tensor;
 import java.util.List;
+import dev.rungbook.testing.Fixtures;
+import org.junit.jupiter.api.Assumptions;
 import org.junit.jupiter.api.Test;
 import org.knowm.xchart.HeatMapChart;
 import tech.tablesaw.api.Row;
@@ -30,6 +32,56 @@ class SensitivityTest {
         // Mean over rows: a second, identical row contributes 0.
         assertEquals(0.143841 / 2, Outputs.klDivergence(new float[] {0, 0, 3, 1}, new float[] {0, ln3, 3, 1}, 2, 2),
                 1e-6);
+    }
+
+    @Test
+    void outputErrorsMatchNumpy() throws java.io.IOException {
+        // Source: NumPy (python3): mean over rows of sum(p * (log p - log q)) with log-softmax via logaddexp.reduce,
+        // mean squared logit difference, and the share of equal argmax.
+        String py = Fixtures.pythonWithNumpy();
+        Assumptions.assumeTrue(py != null, "python3 with numpy not available");
+        int n = 60;
+        int k = 5;
+        float[] p = Fixtures.gaussian(41, n * k);
+        float[] q = Fixtures.gaussian(42, n * k);
+        for (int i = 0; i < q.length; i++) {
+            p[i] *= 3;
+            q[i] = p[i] + 0.8f * q[i];
+        }
+        Network net = Network.of(new dev.rungbook.nn.Relu("identity-on-positive-inputs"));
+        // A network whose output is its input: shift the logits so that the ReLU keeps them all.
+        float shift = 100f;
+        float[] ps = p.clone();
+        float[] qs = q.clone();
+        for (int i = 0; i < ps.length; i++) {
+            ps[i] += shift;
+            qs[i] += shift;
+        }
+        Outputs.Error e = new Outputs(net, Tensor.of(ps, n, k), null).of(Tensor.of(qs, n, k));
+        String script = String.join("\n",
+                "import sys, numpy as np",
+                "p = np.array([float(v) for v in sys.argv[1].split(',')], dtype=np.float32).reshape(-1, 5)",
+                "q = np.array([float(v) for v in sys.argv[2].split(',')], dtype=np.float32).reshape(-1, 5)",
+                "p64, q64 = p.astype(np.float64), q.astype(np.float64)",
+                "lp = p64 - np.logaddexp.reduce(p64, axis=1, keepdims=True)",
+                "lq = q64 - np.logaddexp.reduce(q64, axis=1, keepdims=True)",
+                "kl = np.mean(np.sum(np.exp(lp) * (lp - lq), axis=1))",
+                "mse = np.mean((q64 - p64) ** 2)",
+                "agree = np.mean(np.argmax(p, axis=1) == np.argmax(q, axis=1))",
+                "print(repr(float(kl)), repr(float(mse)), repr(float(agree)))");
+        String[] got = Fixtures.runPython(py, script, join(ps), join(qs)).trim().split("\\s+");
+        assertEquals(Double.parseDouble(got[0]), e.klDivergence(), 1e-9);
+        assertEquals(Double.parseDouble(got[1]), e.logitMse(), 1e-9);
+        assertEquals(Double.parseDouble(got[2]), e.agreement(), 0.0);
+        assertTrue(e.klDivergence() > 0.05, "the test should not be trivial: " + e.klDivergence());
+    }
+
+    private static String join(float[] v) {
+        StringBuilder b = new StringBuilder();
+        for (float x : v) {
+            b.append(b.length() == 0 ? "" : ",").append(x);
+        }
+        return b.toString();
     }
 
     @Test

@@ -41,7 +41,8 @@ import picocli.CommandLine.Spec;
                 + "--layers). Other architectures are not read from checkpoints yet.",
             "Exit codes: 0 ok, 2 usage error, 1 failure."},
         footer = {"", "Example:", "  rungbook plan sample-tensors/conveyor-mlp.f32.safetensors --budget 40KiB \\",
-            "      --data sample-tensors/conveyor-validation.npz --candidates int8 int4 int3 --out plan.json"})
+            "      --data sample-tensors/conveyor-validation.npz \\",
+            "      --candidates int8 int4 'g24=int4 per-group(1,24)' --out plan.json"})
 final class PlanCommand implements Callable<Integer> {
     @Spec
     CommandSpec spec;
@@ -110,13 +111,23 @@ final class PlanCommand implements Callable<Integer> {
         PrintWriter summary = out == null ? err : stdout;
         try {
             Network net = readNetwork(file, layers);
-            SensitivityResult s;
+            Tensor calibration = null;
             try (Checkpoint d = Checkpoint.open(data)) {
-                Tensor x = d.tensor("inputs");
-                Tensor inputs = Tensor.of(x.toFloatArray(), x.shape()).withName("inputs");
-                Sensitivity sens = d.contains("labels") ? Sensitivity.of(net, Dataset.load(data))
-                        : Sensitivity.of(net, inputs);
+                if (!d.contains("inputs")) {
+                    throw new IllegalArgumentException(data + ": no tensor 'inputs' among " + d.names());
+                }
+                if (!d.contains("labels")) {
+                    Tensor x = d.tensor("inputs");
+                    calibration = Tensor.of(x.toFloatArray(), x.shape()).withName("inputs");
+                }
+            }
+            SensitivityResult s;
+            try {
+                Sensitivity sens = calibration == null ? Sensitivity.of(net, Dataset.load(data))
+                        : Sensitivity.of(net, calibration);
                 s = sens.candidates(cands).progress(TerminalProgress.toStderr()).measure();
+            } catch (IllegalArgumentException e) {
+                throw new IllegalArgumentException(data + ": " + e.getMessage(), e);
             }
             BitBudget b = BitBudget.of(s).objective(obj).rerank(rerank);
             Allocation a = b.solve(budgetBytes);

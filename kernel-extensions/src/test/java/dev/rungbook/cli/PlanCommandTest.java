@@ -122,6 +122,14 @@ class PlanCommandTest {
         Run tiny = run("plan", MLP, "--budget", "1KiB", "--data", VALIDATION);
         assertEquals(1, tiny.code());
         assertTrue(tiny.err().contains("below the smallest plan"), tiny.err());
+        Run wrongData = run("plan", MLP, "--budget", "40KiB", "--data", MLP);
+        assertEquals(1, wrongData.code());
+        assertTrue(wrongData.err().contains("conveyor-mlp.f32.safetensors: no tensor 'inputs'"), wrongData.err());
+        Path narrow = dir.resolve("narrow.npz");
+        Checkpoint.write(narrow, Map.of("inputs", Tensor.of(new float[6], 2, 3)));
+        Run shape = run("plan", MLP, "--budget", "40KiB", "--data", narrow.toString());
+        assertEquals(1, shape.code());
+        assertTrue(shape.err().contains("narrow.npz: ") && shape.err().contains("fc1"), shape.err());
         Run layers = run("plan", MLP, "--budget", "40KiB", "--data", VALIDATION, "--layers", "fc1,fc9");
         assertEquals(1, layers.code());
         assertTrue(layers.err().contains("'fc9.weight'"), layers.err());

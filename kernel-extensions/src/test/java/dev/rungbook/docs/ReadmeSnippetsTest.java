@@ -37,7 +37,7 @@ class ReadmeSnippetsTest {
         StringBuilder sb = new StringBuilder(
                 "import java.util.*;\nimport java.nio.file.*;\nimport tech.tablesaw.api.*;\n");
         for (String p : List.of("tensor", "io", "quant", "range", "round", "metrics", "study", "chart", "progress",
-                "nn")) {
+                "nn", "plan")) {
             if (ReadmeSnippetsTest.class.getClassLoader().getResource("dev/rungbook/" + p) != null) {
                 sb.append("import dev.rungbook.").append(p).append(".*;\n");
             }
