@@ -20,17 +20,20 @@ package dev.rungbook.internal;
  *
  * <p>Error sums per row: {@code sqErr = sum (x - dequant)^2}, {@code sqSignal = sum x^2}. They are accumulated on
  * values measured in steps ({@code (x - dequant) / scale}, {@code x / scale}, so float squares cannot overflow or
- * underflow whatever the magnitudes), in float over chunks of 64 values and in double across chunks, then multiplied
- * by {@code scale^2} in double (relative rounding error below about {@code 1e-5}, typically {@code 1e-7}). MSE = {@code sqErr / cols}; SQNR = {@code 10 log10(sqSignal / sqErr)}.
+ * underflow whatever the magnitudes), in float over chunks of 64 values (eight interleaved partial sums per chunk,
+ * see {@link #errorSums}) and in double across chunks, then multiplied by {@code scale^2} in double (relative
+ * rounding error below about {@code 1e-5}, typically {@code 1e-7}). MSE = {@code sqErr / cols}; SQNR = {@code 10 log10(sqSignal / sqErr)}.
  *
  * <p>The loops are written for the JIT: the min/max reduction, the rounding (the magic-number trick
  * {@code (v + 1.5 * 2^23) - 1.5 * 2^23}, exact round-half-even for {@code |v| < 2^22}), the clamp and the
- * dequantization are separate simple loops over a row (which stays in L1); only the final float-to-int code store
- * is scalar in Java 17. The {@code dequantOut} array doubles as scratch for the float codes.
+ * dequantization are separate simple loops over a row (which stays in L1); the min/max reduction, the float-to-int
+ * code store and the sums stay scalar in Java 17 (the sums as eight independent chains). The {@code dequantOut}
+ * array doubles as scratch for the float codes.
  */
 public final class Fused {
     private static final float MAGIC = 12582912f; // 1.5 * 2^23
     private static final int CHUNK = 64;
+    private static final int LANES = 8;
 
     private Fused() {
     }
@@ -57,7 +60,6 @@ public final class Fused {
         int n = checkSizes(w, rows, cols, scalesOut, zeroPointsOut, codesOut.length, dequantOut, sqErrOut,
                 sqSignalOut);
         assert n == rows * cols;
-        float[] sums = new float[2];
         for (int r = 0; r < rows; r++) {
             int off = r * cols;
             float scale = rowParams(w, off, cols, r, bits, symmetric, scalesOut, zeroPointsOut);
@@ -103,13 +105,9 @@ public final class Fused {
     /** Min/max of the row, then scale and zero point; returns the scale. */
     private static float rowParams(float[] w, int off, int cols, int r, int bits, boolean symmetric, float[] scales,
             int[] zps) {
-        float mn = 0;
-        float mx = 0;
-        for (int i = off, end = off + cols; i < end; i++) {
-            float x = w[i];
-            mn = Math.min(mn, x);
-            mx = Math.max(mx, x);
-        }
+        float[] mm = Lanes.minMax(w, off, off + cols, 0f, 0f);
+        float mn = mm[0];
+        float mx = mm[1];
         if (!Float.isFinite(mn) || !Float.isFinite(mx)) { // Math.min/max propagate NaN
             for (int i = off; i < off + cols; i++) {
                 if (!Float.isFinite(w[i])) {
@@ -158,49 +156,87 @@ public final class Fused {
      */
     private static void dequantRow(float[] w, int off, int cols, float scale, float zp, float[] dq, byte[] bytes,
             short[] shorts, int r, double[] sqErr, double[] sqSignal) {
+        int end = off + cols;
+        if (bytes != null) {
+            for (int i = off; i < end; i++) {
+                bytes[i] = (byte) (int) dq[i];
+            }
+        } else {
+            for (int i = off; i < end; i++) {
+                shorts[i] = (short) (int) dq[i];
+            }
+        }
+        for (int i = off; i < end; i++) {
+            dq[i] = (dq[i] - zp) * scale;
+        }
+        if (sqErr == null && sqSignal == null) {
+            return;
+        }
         // Sums run on values measured in steps (x / scale), so float squares neither overflow nor underflow.
         float inv = 1f / scale;
-        double e = 0;
-        double s = 0;
-        int end = off + cols;
-        for (int c = off; c < end; c += CHUNK) {
-            int stop = Math.min(end, c + CHUNK);
-            float ef = 0;
-            float sf = 0;
-            if (bytes != null) {
-                for (int i = c; i < stop; i++) {
-                    float x = w[i];
-                    float t = dq[i];
-                    bytes[i] = (byte) (int) t;
-                    float d = (t - zp) * scale;
-                    dq[i] = d;
-                    float err = (x - d) * inv;
-                    float u = x * inv;
-                    ef += err * err;
-                    sf += u * u;
-                }
-            } else {
-                for (int i = c; i < stop; i++) {
-                    float x = w[i];
-                    float t = dq[i];
-                    shorts[i] = (short) (int) t;
-                    float d = (t - zp) * scale;
-                    dq[i] = d;
-                    float err = (x - d) * inv;
-                    float u = x * inv;
-                    ef += err * err;
-                    sf += u * u;
-                }
-            }
-            e += ef;
-            s += sf;
-        }
+        double[] sums = errorSums(w, dq, off, end, inv);
         double s2 = (double) scale * scale;
         if (sqErr != null) {
-            sqErr[r] = e * s2;
+            sqErr[r] = sums[0] * s2;
         }
         if (sqSignal != null) {
-            sqSignal[r] = s * s2;
+            sqSignal[r] = sums[1] * s2;
         }
+    }
+
+    /**
+     * {@code sum ((x - d) * inv)^2} and {@code sum (x * inv)^2} over {@code [from, to)}, in the order the class
+     * comment describes: per chunk of {@link #CHUNK} values, {@link #LANES} float partial sums (value {@code i} of
+     * the chunk into sum {@code i mod LANES}), added pairwise ({@code ((s0 + s1) + (s2 + s3)) + ((s4 + s5) + (s6 +
+     * s7))}), chunk totals added in double. Eight independent sums keep the additions off one dependency chain.
+     */
+    static double[] errorSums(float[] w, float[] d, int from, int to, float inv) {
+        double[] vector = Lanes.vectorErrorSums(w, d, from, to, inv);
+        return vector != null ? vector : scalarErrorSums(w, d, from, to, inv);
+    }
+
+    /** {@link #errorSums} as plain loops (the fallback, and the reference for tests). */
+    static double[] scalarErrorSums(float[] w, float[] d, int from, int to, float inv) {
+        double e = 0;
+        double s = 0;
+        for (int c = from; c < to; c += CHUNK) {
+            int stop = Math.min(to, c + CHUNK);
+            float e0 = 0, e1 = 0, e2 = 0, e3 = 0, e4 = 0, e5 = 0, e6 = 0, e7 = 0;
+            float s0 = 0, s1 = 0, s2 = 0, s3 = 0, s4 = 0, s5 = 0, s6 = 0, s7 = 0;
+            int i = c;
+            for (; i + LANES <= stop; i += LANES) {
+                float x0 = w[i], x1 = w[i + 1], x2 = w[i + 2], x3 = w[i + 3];
+                float x4 = w[i + 4], x5 = w[i + 5], x6 = w[i + 6], x7 = w[i + 7];
+                float d0 = (x0 - d[i]) * inv, d1 = (x1 - d[i + 1]) * inv, d2 = (x2 - d[i + 2]) * inv;
+                float d3 = (x3 - d[i + 3]) * inv, d4 = (x4 - d[i + 4]) * inv, d5 = (x5 - d[i + 5]) * inv;
+                float d6 = (x6 - d[i + 6]) * inv, d7 = (x7 - d[i + 7]) * inv;
+                e0 += d0 * d0; e1 += d1 * d1; e2 += d2 * d2; e3 += d3 * d3;
+                e4 += d4 * d4; e5 += d5 * d5; e6 += d6 * d6; e7 += d7 * d7;
+                float u0 = x0 * inv, u1 = x1 * inv, u2 = x2 * inv, u3 = x3 * inv;
+                float u4 = x4 * inv, u5 = x5 * inv, u6 = x6 * inv, u7 = x7 * inv;
+                s0 += u0 * u0; s1 += u1 * u1; s2 += u2 * u2; s3 += u3 * u3;
+                s4 += u4 * u4; s5 += u5 * u5; s6 += u6 * u6; s7 += u7 * u7;
+            }
+            if (i < stop) {
+                float[] pe = {e0, e1, e2, e3, e4, e5, e6, e7};
+                float[] ps = {s0, s1, s2, s3, s4, s5, s6, s7};
+                for (int j = 0; i < stop; i++, j++) {
+                    float dd = (w[i] - d[i]) * inv;
+                    float u = w[i] * inv;
+                    pe[j] += dd * dd;
+                    ps[j] += u * u;
+                }
+                e += pairwise(pe);
+                s += pairwise(ps);
+            } else {
+                e += ((e0 + e1) + (e2 + e3)) + ((e4 + e5) + (e6 + e7));
+                s += ((s0 + s1) + (s2 + s3)) + ((s4 + s5) + (s6 + s7));
+            }
+        }
+        return new double[] {e, s};
+    }
+
+    private static float pairwise(float[] p) {
+        return ((p[0] + p[1]) + (p[2] + p[3])) + ((p[4] + p[5]) + (p[6] + p[7]));
     }
 }

@@ -1,5 +1,6 @@
 package dev.rungbook.metrics;
 
+import dev.rungbook.internal.Lanes;
 import dev.rungbook.internal.TensorAccess;
 import dev.rungbook.tensor.Tensor;
 import dev.rungbook.tensor.TensorView;
@@ -29,7 +30,9 @@ import tech.tablesaw.api.Table;
  *       distribution ({@code Q' = (1 - 1e-6) Q + 1e-6 / bins}) so that the value is finite; exactly 0 when the two
  *       histograms are identical.</li>
  * </ul>
- * No metric is ever NaN. Immutable.
+ * No metric is ever NaN. Immutable. The sums behind all metrics but the KL divergence are taken in one pass when the
+ * report is made; the two histograms of the KL divergence only when {@link #klDivergence()} (or {@link #values()},
+ * {@link #toTable()}) first asks for it, and then kept.
  */
 public final class ErrorReport {
     /** The number of histogram bins of {@link #klDivergence()}. */
@@ -41,7 +44,8 @@ public final class ErrorReport {
     private final Tensor approximation;
     private final int channelAxis;
     private final Sums sums;
-    private final double kl;
+    /** The KL divergence once computed; NaN (which the divergence never is) until then. */
+    private volatile double kl;
 
     private ErrorReport(Tensor reference, Tensor approximation, int channelAxis, Sums sums, double kl) {
         this.reference = reference;
@@ -72,8 +76,7 @@ public final class ErrorReport {
             checkFinite(reference, x);
             checkFinite(approximation, y);
         }
-        double kl = klDivergence(x, y, KL_BINS, s.lo, s.hi);
-        return new ErrorReport(reference, approximation, reference.rank() > 0 ? 0 : -1, s, kl);
+        return new ErrorReport(reference, approximation, reference.rank() > 0 ? 0 : -1, s, Double.NaN);
     }
 
     private static void checkFinite(Tensor t, float[] d) {
@@ -94,6 +97,16 @@ public final class ErrorReport {
         return new ErrorReport(reference, approximation, axis, sums, kl);
     }
 
+    /** The KL divergence of the value histograms, computed on first use (two racing callers compute the same). */
+    private double kl() {
+        double k = kl;
+        if (Double.isNaN(k)) {
+            k = klDivergence(TensorAccess.data(reference), TensorAccess.data(approximation), KL_BINS);
+            kl = k;
+        }
+        return k;
+    }
+
     /** Running sums over pairs of values. */
     private static final class Sums {
         long n;
@@ -103,10 +116,8 @@ public final class ErrorReport {
         double ssx;
         double ssy;
         double dot;
-        double lo = Double.POSITIVE_INFINITY;
-        double hi = Double.NEGATIVE_INFINITY;
 
-        /** One tight pass over both arrays, in local variables; also the common min and max. */
+        /** One tight pass over both arrays, in local variables. */
         void addAll(float[] x, float[] y) {
             double e2 = 0;
             double ea = 0;
@@ -114,8 +125,6 @@ public final class ErrorReport {
             double xx = 0;
             double yy = 0;
             double xy = 0;
-            float mn = Float.POSITIVE_INFINITY;
-            float mx = Float.NEGATIVE_INFINITY;
             for (int i = 0; i < x.length; i++) {
                 float a = x[i];
                 float b = y[i];
@@ -127,8 +136,6 @@ public final class ErrorReport {
                 xx += (double) a * a;
                 yy += (double) b * b;
                 xy += (double) a * b;
-                mn = Math.min(mn, Math.min(a, b));
-                mx = Math.max(mx, Math.max(a, b));
             }
             n += x.length;
             sse += e2;
@@ -137,8 +144,6 @@ public final class ErrorReport {
             ssx += xx;
             ssy += yy;
             dot += xy;
-            lo = Math.min(lo, mn);
-            hi = Math.max(hi, mx);
         }
 
         double mse() {
@@ -180,43 +185,68 @@ public final class ErrorReport {
 
     /**
      * {@code KL(P || Q)} in nats between {@code bins}-bin histograms of {@code x} and {@code y} over their common
-     * range, with Q mixed with {@link #KL_MIX} of the uniform distribution (see the class description).
+     * range {@code [min, max]}, with Q mixed with {@link #KL_MIX} of the uniform distribution (see the class
+     * description). Values must be finite.
      */
-    static double klDivergence(float[] x, float[] y, int bins, double lo, double hi) {
+    static double klDivergence(float[] x, float[] y, int bins) {
         if (x.length == 0) {
             return 0;
         }
-        long[] p = histogram(x, lo, hi, bins);
-        long[] q = histogram(y, lo, hi, bins);
+        float[] a = Lanes.minMax(x, 0, x.length, Float.POSITIVE_INFINITY, Float.NEGATIVE_INFINITY);
+        float[] b = Lanes.minMax(y, 0, y.length, a[0], a[1]);
+        long[][] pq = histograms(x, y, b[0], b[1], bins);
+        long[] p = pq[0];
+        long[] q = pq[1];
         if (Arrays.equals(p, q)) {
             return 0;
         }
         double n = x.length;
         double kl = 0;
-        for (int b = 0; b < bins; b++) {
-            if (p[b] == 0) {
+        for (int k = 0; k < bins; k++) {
+            if (p[k] == 0) {
                 continue;
             }
-            double pb = p[b] / n;
-            double qb = (1 - KL_MIX) * (q[b] / n) + KL_MIX / bins;
+            double pb = p[k] / n;
+            double qb = (1 - KL_MIX) * (q[k] / n) + KL_MIX / bins;
             kl += pb * Math.log(pb / qb);
         }
         return Math.max(0, kl);
     }
 
     /**
-     * Counts of {@code v} in {@code bins} equal bins over [lo, hi]: bin {@code floor((v - lo) * bins / (hi - lo))},
-     * the top bin closed; everything in bin 0 when {@code hi == lo}.
+     * Counts of {@code x} and of {@code y} (same length) in {@code bins} equal bins over [lo, hi], in one pass: bin
+     * {@code floor((v - lo) * bins / (hi - lo))}, the top bin closed; everything in bin 0 when {@code hi == lo}. Each
+     * array is counted into two interleaved tables (even and odd indices) that are added at the end, so that runs of
+     * equal bins do not wait on each other's increments.
      */
-    static long[] histogram(float[] v, double lo, double hi, int bins) {
-        long[] h = new long[bins];
+    private static long[][] histograms(float[] x, float[] y, double lo, double hi, int bins) {
         double norm = hi > lo ? bins / (hi - lo) : 0;
-        int top = bins - 1;
-        for (float f : v) {
-            int b = (int) ((f - lo) * norm);
-            h[b < 0 ? 0 : (b > top ? top : b)]++;
+        int[] hx = new int[2 * bins];
+        int[] hy = new int[2 * bins];
+        int n = x.length;
+        int i = 0;
+        for (; i + 1 < n; i += 2) {
+            hx[bin(x[i], lo, norm, bins)]++;
+            hx[bins + bin(x[i + 1], lo, norm, bins)]++;
+            hy[bin(y[i], lo, norm, bins)]++;
+            hy[bins + bin(y[i + 1], lo, norm, bins)]++;
         }
-        return h;
+        for (; i < n; i++) {
+            hx[bin(x[i], lo, norm, bins)]++;
+            hy[bin(y[i], lo, norm, bins)]++;
+        }
+        long[] p = new long[bins];
+        long[] q = new long[bins];
+        for (int k = 0; k < bins; k++) {
+            p[k] = (long) hx[k] + hx[bins + k];
+            q[k] = (long) hy[k] + hy[bins + k];
+        }
+        return new long[][] {p, q};
+    }
+
+    private static int bin(float v, double lo, double norm, int bins) {
+        int b = (int) ((v - lo) * norm);
+        return b < 0 ? 0 : (b >= bins ? bins - 1 : b);
     }
 
     /** The reference tensor. */
@@ -276,7 +306,7 @@ public final class ErrorReport {
 
     /** KL divergence of the value histograms in nats (see the class description). */
     public double klDivergence() {
-        return kl;
+        return kl();
     }
 
     /** The axis of the per-channel table (-1: the whole tensor is one row). */

@@ -23,7 +23,7 @@ public final class Equalization {
     public record Result(Network network, int sweeps, double largestLastChange) {
     }
 
-    /** Equalizes every consecutive pair of linear layers, sweeping up to 100 times or until scales change by < 1e-6. */
+    /** Equalizes every consecutive pair of linear layers, sweeping up to 100 times or until scales change by less than 1e-6. */
     public static Result apply(Network net) {
         return apply(net, 100, 1e-6);
     }

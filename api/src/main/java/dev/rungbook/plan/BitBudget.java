@@ -1,7 +1,6 @@
 package dev.rungbook.plan;
 
 import dev.rungbook.chart.Charts;
-import dev.rungbook.nn.Network;
 import dev.rungbook.progress.Progress;
 import java.util.ArrayList;
 import java.util.List;
@@ -308,8 +307,7 @@ public final class BitBudget {
             plan = plan.withInfo("budget_bytes", Long.toString(budget));
         }
         plan = plan.withInfo("bytes", Long.toString(total)).withInfo("objective", objective.column());
-        Network q = plan.apply(sensitivity.network());
-        Outputs.Error measured = sensitivity.reference().of(q);
+        Outputs.Error measured = sensitivity.measure(choices, plan);
         double floatAcc = sensitivity.floatAccuracy();
         return new Allocation(plan, layers, labels, bytes, cost, budget, objective,
                 sensitivity.hasLabels() ? floatAcc - dropSum : Double.NaN, floatAcc, measured);

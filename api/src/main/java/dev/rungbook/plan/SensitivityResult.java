@@ -68,6 +68,8 @@ public final class SensitivityResult {
     private final int[] elements;
     private final List<Candidate> candidates;
     private final Cell[][] cells;
+    /** Measured output errors of whole plans, by their choice of candidate per layer (plans are re-measured often). */
+    private final java.util.Map<String, Outputs.Error> measuredPlans = new java.util.concurrent.ConcurrentHashMap<>();
 
     SensitivityResult(Network network, Outputs reference, List<String> layers, int[] elements,
             List<Candidate> candidates, List<Cell[]> rows) {
@@ -82,6 +84,14 @@ public final class SensitivityResult {
     /** The network that was measured. */
     public Network network() {
         return network;
+    }
+
+    /**
+     * The output error of the network with layer {@code i} quantized by candidate {@code choices[i]}, measured once
+     * per distinct choice and then remembered; {@code plan} must be that choice.
+     */
+    Outputs.Error measure(int[] choices, Plan plan) {
+        return measuredPlans.computeIfAbsent(java.util.Arrays.toString(choices), k -> reference.of(plan.apply(network)));
     }
 
     Outputs reference() {

@@ -18,8 +18,6 @@ import java.util.stream.IntStream;
 final class AdaptiveObjective {
     static final double ZETA = 1.1;
     static final double GAMMA = -0.1;
-    /** |V| beyond which h(V) is clipped to 0 or 1: ln(11) (sigmoid 1/12 or 11/12), with a margin of 1e-9. */
-    private static final double CLIPPED = Math.log(11.0) + 1e-9;
 
     final int rows;
     final int cols;
@@ -41,10 +39,12 @@ final class AdaptiveObjective {
     private final float[] soft;
     private final float[] dSoft;
     private final float[] dReg;
+    private final float[] dH;
     private final float[] gw;
     private float[] xb = new float[0];
     private float[] yb = new float[0];
     private double regSum;
+    private long undecidedCount;
 
     /**
      * @param w the weight (not modified)
@@ -77,6 +77,7 @@ final class AdaptiveObjective {
         soft = new float[size];
         dSoft = new float[size];
         dReg = new float[size];
+        dH = new float[size];
         gw = new float[size];
         target = outputs(w, x, n);
     }
@@ -141,15 +142,144 @@ final class AdaptiveObjective {
         return s / n;
     }
 
+    /** Weights per unit of work of the element loops (their arrays stay in the core's cache between loops). */
+    static final int CHUNK = 4096;
+    /** The clamp on V before the sigmoid: beyond ln 11 = 2.398 the rectified sigmoid is clipped to 0 or 1 anyway. */
+    private static final float V_CLAMP = 2.45f;
+    /** Turns a positive margin of at least one float32 step at these magnitudes into 1 (see {@link #softChunk}). */
+    private static final float STEEP = 0x1p40f;
+
+    /**
+     * For weights {@code [from, to)}: {@code h(V)}, the soft weight, {@code dh/dV} (into {@link #dH}) and the soft
+     * weight's derivative {@code s dh/dV} where the code is inside its range (else 0), without branches: the
+     * masks "0 < h_raw < 1" and "qmin <= code <= qmax" are {@code clamp(2^40 * margin (+ 1), 0, 1)}, which is
+     * exactly 0 or 1 because every non-zero margin of these float32 values exceeds {@code 2^-40}.
+     *
+     * <p>{@code sigmoid(V) = 1 / (1 + e^-V)} with {@code e^-V = (e^(-V/8))^8} and {@code e^u} for {@code |u| <=
+     * 0.31} by its Taylor polynomial of degree 7 (truncation below {@code 2e-9}); in float32 the rectified sigmoid
+     * is within {@code 4e-7} of the double-precision value (measured over {@code |V| <= 2.4}).
+     */
+    private void softChunk(float[] v, int from, int to, float qlo, float qhi) {
+        // Four short loops rather than one long one: the JIT vectorises each of them (a single loop with all of
+        // this is too large for it and runs scalar, where Math.min/max are slow). dH holds the sigmoid in between.
+        final float zg = (float) (ZETA - GAMMA);
+        final float g = (float) GAMMA;
+        for (int e = from; e < to; e++) {
+            float u = Math.max(-V_CLAMP, Math.min(V_CLAMP, v[e])) * -0.125f;
+            float p = 1f + u * (1f + u * (1f / 2 + u * (1f / 6 + u * (1f / 24 + u * (1f / 120 + u * (1f / 720
+                    + u * (1f / 5040)))))));
+            p = p * p;
+            p = p * p;
+            p = p * p;
+            dH[e] = 1f / (1f + p);
+        }
+        for (int e = from; e < to; e++) {
+            float sig = dH[e];
+            float raw = sig * zg + g;
+            h[e] = Math.max(0f, Math.min(1f, raw));
+            dH[e] = zg * sig * (1f - sig) * Math.max(0f, Math.min(1f, STEEP * Math.min(raw, 1f - raw)));
+        }
+        for (int e = from; e < to; e++) {
+            soft[e] = scale[e] * (Math.max(qlo, Math.min(qhi, base[e] + h[e])) - zero[e]);
+        }
+        for (int e = from; e < to; e++) {
+            float code = base[e] + h[e];
+            dSoft[e] = scale[e] * dH[e] * Math.max(0f, Math.min(1f, STEEP * Math.min(code - qlo, qhi - code) + 1f));
+        }
+    }
+
+    /**
+     * The regulariser {@code sum (1 - |2h - 1|^beta)} over {@code [from, to)} and its gradient
+     * {@code -lambda beta |2h - 1|^(beta - 1) sign(2h - 1) 2 dh/dV} into {@link #dReg} ({@code regScale = -2 lambda
+     * beta}), the power read from {@code power}.
+     */
+    private double regulariserChunk(int from, int to, float[] power, float regScale) {
+        // The table look-up keeps this loop scalar; four partial sums keep the additions off one dependency chain.
+        double r0 = 0;
+        double r1 = 0;
+        double r2 = 0;
+        double r3 = 0;
+        float knots = POWER_KNOTS;
+        int e = from;
+        for (; e + 3 < to; e += 4) {
+            r0 += regulariserTerm(e, power, knots, regScale);
+            r1 += regulariserTerm(e + 1, power, knots, regScale);
+            r2 += regulariserTerm(e + 2, power, knots, regScale);
+            r3 += regulariserTerm(e + 3, power, knots, regScale);
+        }
+        for (; e < to; e++) {
+            r0 += regulariserTerm(e, power, knots, regScale);
+        }
+        return (r0 + r1) + (r2 + r3);
+    }
+
+    /** {@code 1 - |2h - 1|^beta} of weight {@code e}; its gradient into {@link #dReg}. */
+    private float regulariserTerm(int e, float[] power, float knots, float regScale) {
+        float t = 2 * h[e] - 1;
+        float a = Math.abs(t);
+        float pos = a * knots;
+        int i = Math.min((int) pos, POWER_KNOTS - 1);
+        float lo = power[i];
+        float p1 = lo + (pos - i) * (power[i + 1] - lo);
+        dReg[e] = regScale * Math.copySign(p1, t) * dH[e];
+        return 1 - a * p1;
+    }
+
+    /** As {@link #regulariserChunk} with the power {@code a^p} ({@code 0 <= p < 1}) by exp and log. */
+    private double exactRegulariserChunk(int from, int to, double p, float regScale) {
+        double rs = 0;
+        for (int e = from; e < to; e++) {
+            double t = 2.0 * h[e] - 1;
+            double a = Math.abs(t);
+            double p1 = a == 0 ? 0.0 : Math.exp(p * Math.log(a));
+            rs += 1 - a * p1;
+            dReg[e] = (float) (regScale * Math.copySign(p1, t) * dH[e]);
+        }
+        return rs;
+    }
+
+    /**
+     * The number of {@code h} values in {@code [from, to)} not within {@code 1e-3} of 0 or 1, counted without
+     * branches: {@code clamp(2^40 * min(h - 0.001, 0.999 - h), 0, 1)} is exactly 1 for those and 0 for the others
+     * (a positive margin here is at least one float32 step near 0.001, about {@code 1e-10}).
+     */
+    private long undecided(int from, int to) {
+        final float lo = 1e-3f;
+        final float hi = 1 - 1e-3f;
+        float u0 = 0;
+        float u1 = 0;
+        int e = from;
+        for (; e + 1 < to; e += 2) {
+            u0 += Math.max(0f, Math.min(1f, STEEP * Math.min(h[e] - lo, hi - h[e])));
+            u1 += Math.max(0f, Math.min(1f, STEEP * Math.min(h[e + 1] - lo, hi - h[e + 1])));
+        }
+        for (; e < to; e++) {
+            u0 += Math.max(0f, Math.min(1f, STEEP * Math.min(h[e] - lo, hi - h[e])));
+        }
+        return (long) u0 + (long) u1; // whole numbers below 2^24: exact in float
+    }
+
     /** Share of {@code h} values (from the last call) not within {@code 1e-3} of 0 or 1. */
     double undecidedShare() {
-        long u = 0;
-        for (float v : h) {
-            if (v > 1e-3f && v < 1 - 1e-3f) {
-                u++;
-            }
+        return h.length == 0 ? 0 : (double) undecidedCount / h.length;
+    }
+
+    /** Intervals of a table of {@code a^p} over {@code a} in {@code [0, 1]}. */
+    static final int POWER_KNOTS = 4096;
+
+    /**
+     * {@code a^p} at {@code a = i / POWER_KNOTS}, {@code i = 0..POWER_KNOTS}, for {@code p >= 1}. Linear
+     * interpolation errs by at most {@code step^2 / 8 * p (p - 1)}: below {@code 2.6e-6} for {@code p <= 19}.
+     * Values below {@code 1e-30} are stored as 0, so that no float32 result of the regulariser's gradient is
+     * subnormal (subnormal operands cost the processor a slow assist per operation).
+     */
+    static float[] powerTable(double p) {
+        float[] t = new float[POWER_KNOTS + 1];
+        for (int i = 1; i <= POWER_KNOTS; i++) {
+            double v = Math.pow(i / (double) POWER_KNOTS, p);
+            t[i] = v < 1e-30 ? 0f : (float) v;
         }
-        return h.length == 0 ? 0 : (double) u / h.length;
+        return t;
     }
 
     private static void parallel(int rows, int cols, RowBody body) {
@@ -170,54 +300,45 @@ final class AdaptiveObjective {
      * The loss on the batch {@code idx[0, count)} and its gradient with respect to {@code v} (written to
      * {@code grad}); {@code h} is updated. {@code regularise} adds the rounding regulariser with exponent
      * {@code beta}.
+     *
+     * <p>Arithmetic: float32, in branch-free loops over chunks of {@link #CHUNK} weights that the JIT vectorises
+     * (see {@link #softChunk}); the power {@code |2h - 1|^(beta - 1)} of the regulariser comes from a table made
+     * once per call for {@code beta >= 2} (see {@link #powerTable}), from {@link Math#exp} and {@link Math#log}
+     * below that.
      */
     double lossAndGradient(float[] v, int[] idx, int count, double beta, boolean regularise, float[] grad) {
-        double[] regParts = new double[rows];
-        parallel(rows, cols, (r0, r1) -> {
-            for (int r = r0; r < r1; r++) {
-                double rs = 0;
-                for (int e = r * cols; e < (r + 1) * cols; e++) {
-                    double ve = v[e];
-                    if (ve > CLIPPED || ve < -CLIPPED) {
-                        // h is exactly 0 or 1 (sigmoid below 1/12 or above 11/12): no gradient, no regulariser,
-                        // no transcendental functions. After annealing this is most weights.
-                        double hv = ve > 0 ? 1.0 : 0.0;
-                        h[e] = (float) hv;
-                        double code = base[e] + hv;
-                        code = code < qmin ? qmin : (code > qmax ? qmax : code);
-                        soft[e] = (float) (scale[e] * (code - zero[e]));
-                        dSoft[e] = 0f;
-                        dReg[e] = 0f;
-                        continue;
-                    }
-                    double sig = 1.0 / (1.0 + Math.exp(-ve));
-                    double hv = sig * (ZETA - GAMMA) + GAMMA;
-                    boolean inside = hv > 0 && hv < 1;
-                    hv = hv <= 0 ? 0 : (hv >= 1 ? 1 : hv);
-                    h[e] = (float) hv;
-                    double dh = inside ? (ZETA - GAMMA) * sig * (1 - sig) : 0.0;
-                    double code = base[e] + hv;
-                    boolean inRange = code >= qmin && code <= qmax;
-                    code = code < qmin ? qmin : (code > qmax ? qmax : code);
-                    soft[e] = (float) (scale[e] * (code - zero[e]));
-                    dSoft[e] = inRange ? (float) (scale[e] * dh) : 0f;
-                    if (regularise) {
-                        double t = 2 * hv - 1;
-                        double a = Math.abs(t);
-                        // a^(beta-1) by exp/log; a = 0 gives 0 (beta >= 1).
-                        double p1 = a == 0 ? 0.0 : Math.exp((beta - 1) * Math.log(a));
-                        rs += 1 - a * p1;
-                        dReg[e] = (float) (lambda * -beta * p1 * Math.signum(t) * 2 * dh);
-                    }
+        int size = rows * cols;
+        int chunks = (size + CHUNK - 1) / CHUNK;
+        double[] regParts = new double[chunks];
+        long[] undecidedParts = new long[chunks];
+        float[] power = regularise && beta >= 2 ? powerTable(beta - 1) : null;
+        float regScale = (float) (-2 * lambda * beta);
+        float qlo = qmin;
+        float qhi = qmax;
+        parallel(chunks, CHUNK, (c0, c1) -> {
+            for (int c = c0; c < c1; c++) {
+                int from = c * CHUNK;
+                int to = Math.min(size, from + CHUNK);
+                softChunk(v, from, to, qlo, qhi);
+                if (regularise) {
+                    regParts[c] = power != null ? regulariserChunk(from, to, power, regScale)
+                            : exactRegulariserChunk(from, to, beta - 1, regScale);
                 }
-                regParts[r] = rs;
+                undecidedParts[c] = undecided(from, to);
             }
         });
+        long und = 0;
+        for (long u : undecidedParts) {
+            und += u;
+        }
+        undecidedCount = und;
         double reg = 0;
         for (double p : regParts) {
             reg += p;
         }
-        regSum = reg;
+        if (regularise) {
+            regSum = reg;
+        }
         if (xb.length < count * cols) {
             xb = new float[count * cols];
             yb = new float[count * rows];
@@ -244,7 +365,12 @@ final class AdaptiveObjective {
         la.sgemm(true, false, rows, cols, count, 1f, yb, 0, rows, xb, 0, cols, 0f, gw, 0, cols);
         parallel(rows, cols, (r0, r1) -> {
             for (int e = r0 * cols; e < r1 * cols; e++) {
-                grad[e] = gw[e] * dSoft[e] + (regularise ? dReg[e] : 0f);
+                grad[e] = gw[e] * dSoft[e];
+            }
+            if (regularise) {
+                for (int e = r0 * cols; e < r1 * cols; e++) {
+                    grad[e] += dReg[e];
+                }
             }
         });
         return rec + (regularise ? lambda * reg : 0.0);

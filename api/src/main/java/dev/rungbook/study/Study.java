@@ -2,6 +2,7 @@ package dev.rungbook.study;
 
 import dev.rungbook.io.Checkpoint;
 import dev.rungbook.metrics.ErrorReport;
+import dev.rungbook.progress.OperationInterruptedException;
 import dev.rungbook.progress.Progress;
 import dev.rungbook.quant.Quantized;
 import dev.rungbook.quant.Quantizer;
@@ -11,6 +12,12 @@ import java.util.LinkedHashMap;
 import java.util.List;
 import java.util.Map;
 import java.util.Objects;
+import java.util.concurrent.Callable;
+import java.util.concurrent.CompletableFuture;
+import java.util.concurrent.ExecutionException;
+import java.util.concurrent.ExecutorService;
+import java.util.concurrent.Executors;
+import java.util.concurrent.Future;
 import java.util.function.Predicate;
 import java.util.function.Supplier;
 
@@ -21,7 +28,7 @@ import java.util.function.Supplier;
  * Study.of(w1, w2).compare(Quantizer.linear(8), Quantizer.linear(4).perGroup(1, 128), Quantizer.nf4()).table();
  * }</pre>
  *
- * <p>Immutable; {@link #compare} does the work, tensor by tensor and spec by spec, reporting each finished pair to
+ * <p>Immutable; {@link #compare} does the work, tensor by tensor (specs in parallel), reporting each finished pair to
  * the {@link Progress} listener (task {@code "study"}) and stopping with an
  * {@link dev.rungbook.progress.OperationInterruptedException} when its thread is interrupted. A spec that does not fit
  * a tensor stops the study with the quantizer's error, which names both.
@@ -119,7 +126,10 @@ public final class Study {
     }
 
     /**
-     * Applies every spec to every tensor (tensor-major order) and collects one row per pair.
+     * Applies every spec to every tensor (tensor-major order) and collects one row per pair. Each tensor is read once
+     * for all specs, and the specs of a tensor run in parallel on up to {@link Runtime#availableProcessors()} threads
+     * (the quantizers themselves are single-threaded); rows come out in tensor-major, spec order whatever finishes
+     * first. An interrupt of the calling thread stops the running specs.
      *
      * @throws IllegalArgumentException if no spec is given, or a spec does not fit a tensor
      */
@@ -127,23 +137,77 @@ public final class Study {
         if (specs.length == 0) {
             throw new IllegalArgumentException("compare needs at least one quantizer");
         }
-        List<StudyResult.Row> rows = new ArrayList<>();
-        long total = (long) tensors.size() * specs.length;
-        long done = 0;
-        for (Map.Entry<String, Supplier<Tensor>> e : tensors.entrySet()) {
-            Tensor t = e.getValue().get();
-            for (Quantizer q : specs) {
-                Objects.requireNonNull(q, "quantizer");
-                Progress.checkInterrupted("study");
-                Quantized r = q.apply(t, progress);
-                ErrorReport err = r.error();
-                rows.add(new StudyResult.Row(e.getKey(), q.label(), t.size(), r.bitsPerWeight(),
-                        r.bytes(), err.values()));
-                done++;
-                progress.update("study", done, total, err.mse());
-            }
+        for (Quantizer q : specs) {
+            Objects.requireNonNull(q, "quantizer");
         }
-        progress.finish("study");
-        return new StudyResult(rows);
+        int threads = Math.min(specs.length, Runtime.getRuntime().availableProcessors());
+        ExecutorService pool = threads > 1 ? Executors.newFixedThreadPool(threads, r -> {
+            Thread t = new Thread(r, "rungbook-study");
+            t.setDaemon(true);
+            return t;
+        }) : null;
+        try {
+            List<StudyResult.Row> rows = new ArrayList<>();
+            long total = (long) tensors.size() * specs.length;
+            long done = 0;
+            for (Map.Entry<String, Supplier<Tensor>> e : tensors.entrySet()) {
+                Progress.checkInterrupted("study");
+                Tensor t = e.getValue().get();
+                List<Future<StudyResult.Row>> pending = new ArrayList<>();
+                for (Quantizer q : specs) {
+                    Callable<StudyResult.Row> job = () -> row(e.getKey(), t, q);
+                    pending.add(pool == null ? CompletableFuture.completedFuture(call(job)) : pool.submit(job));
+                }
+                for (Future<StudyResult.Row> f : pending) {
+                    StudyResult.Row r = await(f, pending);
+                    rows.add(r);
+                    done++;
+                    progress.update("study", done, total, r.metrics()[ErrorReport.METRICS.indexOf("mse")]);
+                }
+            }
+            return new StudyResult(rows);
+        } finally {
+            if (pool != null) {
+                pool.shutdownNow();
+            }
+            progress.finish("study");
+        }
+    }
+
+    private StudyResult.Row row(String name, Tensor t, Quantizer q) {
+        Quantized r = q.apply(t, progress);
+        ErrorReport err = r.error();
+        return new StudyResult.Row(name, q.label(), t.size(), r.bitsPerWeight(), r.bytes(), err.values());
+    }
+
+    private static <T> T call(Callable<T> job) {
+        try {
+            return job.call();
+        } catch (RuntimeException e) {
+            throw e;
+        } catch (Exception e) {
+            throw new IllegalStateException(e);
+        }
+    }
+
+    /** The result of {@code f}; its failure rethrown as it was; on interrupt, every pending job is cancelled. */
+    private static <T> T await(Future<T> f, List<? extends Future<?>> all) {
+        try {
+            return f.get();
+        } catch (InterruptedException e) {
+            all.forEach(x -> x.cancel(true));
+            Thread.currentThread().interrupt();
+            throw new OperationInterruptedException("study");
+        } catch (ExecutionException e) {
+            all.forEach(x -> x.cancel(true));
+            Throwable c = e.getCause();
+            if (c instanceof RuntimeException re) {
+                throw re;
+            }
+            if (c instanceof Error err) {
+                throw err;
+            }
+            throw new IllegalStateException(c);
+        }
     }
 }

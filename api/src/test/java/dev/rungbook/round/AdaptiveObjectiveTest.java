@@ -13,6 +13,10 @@ import org.junit.jupiter.api.Test;
 /** The adaptive-rounding objective and its analytic gradient. */
 class AdaptiveObjectiveTest {
     private static void checkGradient(boolean bias, boolean relu, boolean regularise) {
+        checkGradient(bias, relu, regularise, 4.0);
+    }
+
+    private static void checkGradient(boolean bias, boolean relu, boolean regularise, double beta) {
         int rows = 3;
         int cols = 5;
         int n = 40;
@@ -32,15 +36,15 @@ class AdaptiveObjectiveTest {
             idx[i] = (i * 7) % n;
         }
         float[] grad = new float[v.length];
-        obj.lossAndGradient(v, idx, 25, 4.0, regularise, grad);
+        obj.lossAndGradient(v, idx, 25, beta, regularise, grad);
         float[] scratch = new float[v.length];
         for (int e = 0; e < v.length; e++) {
             float keep = v[e];
             double eps = 1e-2;
             v[e] = (float) (keep + eps);
-            double up = obj.lossAndGradient(v, idx, 25, 4.0, regularise, scratch);
+            double up = obj.lossAndGradient(v, idx, 25, beta, regularise, scratch);
             v[e] = (float) (keep - eps);
-            double down = obj.lossAndGradient(v, idx, 25, 4.0, regularise, scratch);
+            double down = obj.lossAndGradient(v, idx, 25, beta, regularise, scratch);
             v[e] = keep;
             double numeric = (up - down) / (2 * eps);
             // Source: central finite differences of the objective as defined (check-values.md section 7).
@@ -55,6 +59,9 @@ class AdaptiveObjectiveTest {
         checkGradient(false, false, true);
         checkGradient(true, true, false);
         checkGradient(true, true, true);
+        // beta 20 (the start of the schedule, power from the table) and 1.5 (below 2: power by exp and log)
+        checkGradient(false, false, true, 20.0);
+        checkGradient(true, false, true, 1.5);
     }
 
     @Test

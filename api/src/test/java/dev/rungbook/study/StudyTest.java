@@ -70,6 +70,33 @@ class StudyTest {
     }
 
     @Test
+    void anInterruptStopsSpecsRunningInParallel() throws Exception {
+        // A rule that takes 0.2 ms per element: each spec needs about 1.6 s for w1's 8192 values.
+        Quantizer slow = Quantizer.linear(8).rounding(dev.rungbook.round.Rounding.custom("slow", (x, i) -> {
+            java.util.concurrent.locks.LockSupport.parkNanos(200_000);
+            return Math.rint(x);
+        }));
+        Quantizer slower = slow.perTensor();
+        java.util.concurrent.atomic.AtomicReference<Throwable> thrown = new java.util.concurrent.atomic.AtomicReference<>();
+        Thread t = new Thread(() -> {
+            try {
+                Study.of(w1).compare(slow, slower);
+            } catch (Throwable e) {
+                thrown.set(e);
+            }
+        });
+        t.start();
+        Thread.sleep(200);
+        long start = System.nanoTime();
+        t.interrupt();
+        t.join(10_000);
+        assertTrue(!t.isAlive(), "the study did not stop");
+        assertTrue(thrown.get() instanceof OperationInterruptedException, String.valueOf(thrown.get()));
+        // Stopping is prompt: well before the 1.6 s a spec needs (a generous bound for a loaded machine).
+        assertTrue(System.nanoTime() - start < 1_500_000_000L, "took " + (System.nanoTime() - start) / 1e6 + " ms");
+    }
+
+    @Test
     void reportsProgressAndStopsWhenInterrupted() {
         List<Long> done = new ArrayList<>();
         Study.of(w1, w2).progress((task, d, total, loss) -> {

@@ -50,29 +50,12 @@ public class LearnedRoundingBench {
     private float[] c;
 
     private static float[] gaussian(long seed, int n, double sd) {
-        SplittableRandom r = new SplittableRandom(seed);
-        float[] v = new float[n];
-        for (int i = 0; i < n; i++) {
-            // Box-Muller from two uniforms.
-            double u1 = 1 - r.nextDouble();
-            double u2 = r.nextDouble();
-            v[i] = (float) (sd * Math.sqrt(-2 * Math.log(u1)) * Math.cos(2 * Math.PI * u2));
-        }
-        return v;
+        return AdaptiveCurve.gaussian(seed, n, sd);
     }
 
     /** Inputs with 64 shared factors, so the features are correlated as real activations are. */
     private static float[] inputs(long seed, int n, int in) {
-        int k = 64;
-        float[] z = gaussian(seed, n * k, 1.0);
-        float[] mix = gaussian(seed + 1, k * in, 1.0 / Math.sqrt(k));
-        float[] noise = gaussian(seed + 2, n * in, 0.1);
-        float[] x = new float[n * in];
-        LinearAlgebra.instance().sgemm(false, false, n, in, k, z, mix, x);
-        for (int i = 0; i < x.length; i++) {
-            x[i] += noise[i];
-        }
-        return x;
+        return AdaptiveCurve.inputs(seed, n, in);
     }
 
     @Setup(Level.Trial)

@@ -27,7 +27,8 @@ import tech.tablesaw.columns.Column;
 final class Report {
     private static final String STYLE = "body{font-family:system-ui,sans-serif;margin:2em auto;max-width:1200px;"
             + "padding:0 1em}table{border-collapse:collapse;margin:1em 0;font-size:13px}"
-            + "th,td{border:1px solid #ccc;padding:3px 8px}td.n{text-align:right;font-variant-numeric:tabular-nums}"
+            + "th,td{border:1px solid #ccc;padding:3px 8px;white-space:nowrap}"
+            + "td.n{text-align:right;font-variant-numeric:tabular-nums}"
             + "th{background:#f3f3f3}img{max-width:100%;margin:1em 0}";
 
     private Report() {

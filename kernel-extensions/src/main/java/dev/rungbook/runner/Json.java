@@ -7,16 +7,12 @@ import com.google.gson.JsonElement;
 import com.google.gson.JsonNull;
 import com.google.gson.JsonObject;
 import com.google.gson.JsonPrimitive;
+import dev.rungbook.internal.AtomicFile;
 import java.io.IOException;
 import java.nio.charset.StandardCharsets;
-import java.nio.file.AtomicMoveNotSupportedException;
 import java.nio.file.Files;
 import java.nio.file.Path;
-import java.nio.file.StandardCopyOption;
-import java.nio.file.attribute.PosixFilePermission;
-import java.nio.file.attribute.PosixFilePermissions;
 import java.util.Collection;
-import java.util.Set;
 import java.util.Map;
 
 /** JSON and file helpers of the runner. */
@@ -69,32 +65,10 @@ final class Json {
         return e.getAsString();
     }
 
-    /** Gives the temporary file the target's permissions, or rw-r--r-- for a new file (where POSIX applies). */
-    private static void permissions(Path tmp, Path target) throws IOException {
-        if (!Files.getFileStore(tmp).supportsFileAttributeView("posix")) {
-            return;
-        }
-        Set<PosixFilePermission> perms = Files.exists(target) ? Files.getPosixFilePermissions(target)
-                : PosixFilePermissions.fromString("rw-r--r--");
-        Files.setPosixFilePermissions(tmp, perms);
-    }
-
-    /** Writes {@code text} to {@code file} atomically: a temporary file in the same folder, then a rename. */
+    /** Writes {@code text} to {@code file} atomically ({@link AtomicFile}), creating its folder if needed. */
     static void writeAtomically(Path file, String text) throws IOException {
         Path abs = file.toAbsolutePath();
-        Path dir = abs.getParent();
-        Files.createDirectories(dir);
-        Path tmp = Files.createTempFile(dir, "." + abs.getFileName() + ".", ".tmp");
-        try {
-            Files.writeString(tmp, text, StandardCharsets.UTF_8);
-            permissions(tmp, abs);
-            try {
-                Files.move(tmp, abs, StandardCopyOption.ATOMIC_MOVE, StandardCopyOption.REPLACE_EXISTING);
-            } catch (AtomicMoveNotSupportedException e) {
-                Files.move(tmp, abs, StandardCopyOption.REPLACE_EXISTING);
-            }
-        } finally {
-            Files.deleteIfExists(tmp);
-        }
+        Files.createDirectories(abs.getParent());
+        AtomicFile.write(abs, text.getBytes(StandardCharsets.UTF_8));
     }
 }
