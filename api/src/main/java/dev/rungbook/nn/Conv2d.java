@@ -181,6 +181,27 @@ public final class Conv2d implements WeightedLayer {
     }
 
     /**
+     * The receptive fields of {@code batch} as rows: {@code [N * P, in * kh * kw]}, sample after sample, output
+     * positions in row-major order within a sample, taps ordered {@code (c, u, v)} like the weight's last three axes
+     * (zeros where padded). Row {@code n P + q} times the weight seen as {@code [out, in * kh * kw]} plus the bias is
+     * the output of sample n at position q.
+     */
+    Tensor im2colRows(Tensor batch) {
+        int[] is = batch.shape();
+        int[] os = outputShape(is);
+        int p = os[2] * os[3];
+        int k = inChannels() * kernelHeight() * kernelWidth();
+        float[] x = TensorAccess.data(batch);
+        float[] rows = new float[is[0] * p * k];
+        float[] col = new float[p * k];
+        for (int s = 0; s < is[0]; s++) {
+            im2col(x, s, is, os, col, false);
+            System.arraycopy(col, 0, rows, s * p * k, p * k);
+        }
+        return TensorAccess.wrap(rows, new int[] {is[0] * p, k}, DType.F32, null);
+    }
+
+    /**
      * Writes sample {@code s}'s receptive fields of {@code x} as rows {@code col[q, (c, u, v)]} (zero where padded);
      * with {@code adjoint} instead adds the rows of {@code col} back onto sample {@code s} of {@code x} (col2im, the
      * transpose, for the input gradient).

@@ -72,7 +72,10 @@ public final class LayerQuantization {
      * {@code cal -> Rounding.adaptive(cal).iterations(2000)} or {@code Rounding::errorFeedback}. At calibration the
      * layer's inputs (as the network quantized up to that layer produces them), its bias and its following ReLU (if
      * any) are captured into a {@link Calibration}, and the weight quantizer runs with {@code factory.apply(cal)} as
-     * its rounding. The rounding must be a {@link LayerRounding} or an element rule.
+     * its rounding. The rounding must be a {@link LayerRounding} or an element rule. For a convolution the captured
+     * inputs are its receptive fields as rows (one per sample and output position, taps ordered like the weight's
+     * {@code [in, kh, kw]}) and its weight is rounded as the matrix {@code [out, in*kh*kw]}, so its quantizer must be
+     * per tensor or per output channel (axis 0).
      */
     public LayerQuantization learnedRounding(Function<Calibration, ? extends Rounding> factory) {
         return new LayerQuantization(weights, Objects.requireNonNull(factory, "rounding factory"), activations,

@@ -3,6 +3,7 @@ package dev.rungbook.nn;
 import dev.rungbook.internal.TensorAccess;
 import dev.rungbook.metrics.ErrorReport;
 import dev.rungbook.progress.Progress;
+import dev.rungbook.quant.Granularity;
 import dev.rungbook.quant.Quantized;
 import dev.rungbook.quant.Quantizer;
 import dev.rungbook.range.Range;
@@ -138,8 +139,15 @@ public final class SimulatedNetwork {
                     }
                     wq = wq.rounding(r);
                 }
-                qw = wq.apply(ref.weight().withName(ref.name() + ".weight"), progress);
-                layer = ref.withWeight(qw.dequantized());
+                // a convolution with learned rounding is quantized as its [out, in*kh*kw] matrix (see capture)
+                boolean matrix = lq.learnedRounding().isPresent() && ref instanceof Conv2d;
+                Tensor w = ref.weight();
+                if (matrix) {
+                    checkMatrixGranularity(ref, wq);
+                    w = w.reshape(w.dim(0), w.size() / w.dim(0));
+                }
+                qw = wq.apply(w.withName(ref.name() + ".weight"), progress);
+                layer = ref.withWeight(matrix ? qw.dequantized().reshape(ref.weight().shape()) : qw.dequantized());
                 CalibratedActivation feeding = stages.isEmpty() ? in : stages.get(stages.size() - 1).output;
                 if (setup.integerBias() && feeding != null && NetworkQuantization.isIntegerGrid(qw.spec())
                         && NetworkQuantization.isIntegerGrid(feeding.quantizer())) {
@@ -175,9 +183,18 @@ public final class SimulatedNetwork {
         return TensorAccess.wrap(out, bias.shape(), bias.dtype(), bias.name());
     }
 
-    /** The calibration inputs of {@code layer} for a learned rounding: its inputs, bias and a following ReLU. */
+    /**
+     * The calibration inputs of {@code layer} for a learned rounding: its inputs, bias and a following ReLU. For a
+     * convolution the inputs are its receptive fields as rows ({@code Conv2d.im2colRows}), one row per sample and
+     * output position, so that its weight, seen as the matrix {@code [out, in*kh*kw]}, is rounded like a linear
+     * layer's.
+     */
     private static Calibration capture(WeightedLayer layer, Tensor x, List<Layer> tail) {
         Tensor w = layer.weight();
+        if (layer instanceof Conv2d) {
+            x = ((Conv2d) layer).im2colRows(x);
+            w = w.reshape(w.dim(0), w.size() / w.dim(0));
+        }
         if (w.rank() != 2 || x.rank() != 2 || x.dim(1) != w.dim(1)) {
             throw new IllegalArgumentException(layer.name() + ": learned rounding needs a layer that reads inputs "
                     + "[N, in] with a weight [out, in]; the weight is " + Arrays.toString(w.shape())
@@ -185,6 +202,17 @@ public final class SimulatedNetwork {
         }
         Calibration cal = Calibration.of(x.withName(layer.name() + " calibration inputs")).withBias(layer.bias());
         return !tail.isEmpty() && tail.get(0) instanceof Relu ? cal.followedBy(Calibration.Activation.RELU) : cal;
+    }
+
+    /** Refuses granularities whose meaning changes when a convolution weight is seen as a matrix. */
+    private static void checkMatrixGranularity(WeightedLayer layer, Quantizer q) {
+        Granularity g = q.granularity();
+        if (g.kind() == Granularity.Kind.TENSOR || (g.kind() == Granularity.Kind.CHANNEL && g.axis() == 0)) {
+            return;
+        }
+        throw new IllegalArgumentException(layer.name() + ": learned rounding quantizes a convolution weight as its "
+                + "[out, in*kh*kw] matrix, so it needs per-tensor or per-output-channel (axis 0) weights; got "
+                + q.label());
     }
 
     /** The set-up this network was calibrated from. */

@@ -43,7 +43,7 @@ class EqualizationTest {
         return Tensor.of(x, n, features);
     }
 
-    private static double maxRelativeDifference(Tensor a, Tensor b) {
+    static double maxRelativeDifference(Tensor a, Tensor b) {
         float[] x = TensorAccess.data(a);
         float[] y = TensorAccess.data(b);
         double scale = 0;
@@ -71,7 +71,7 @@ class EqualizationTest {
         Network net = imbalanced(3);
         Linear a = net.linearLayers().get(0);
         Linear b = net.linearLayers().get(1);
-        Linear[] out = new Linear[2];
+        WeightedLayer[] out = new WeightedLayer[2];
         Equalization.equalizePair(a, b, out);
         for (int i = 0; i < 32; i++) {
             double r1 = rowMax(a.weight(), i);

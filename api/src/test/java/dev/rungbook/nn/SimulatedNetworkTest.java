@@ -294,9 +294,12 @@ class SimulatedNetworkTest {
                 .calibrate(cal);
         assertArrayEquals(TensorAccess.data(LayersTest.convNet(40).forward(x)),
                 TensorAccess.data(unfolded.forward(x)));
+        // learned rounding sees a convolution weight as [out, in*kh*kw]: granularities on other axes are refused
         IllegalArgumentException e = assertThrows(IllegalArgumentException.class,
-                () -> NetworkQuantization.of(net).learnedRounding(Rounding::errorFeedback).calibrate(cal));
-        assertTrue(e.getMessage().startsWith("conv1: learned rounding needs"), e.getMessage());
+                () -> NetworkQuantization.of(net).weights(Quantizer.linear(4).perChannel(1))
+                        .learnedRounding(Rounding::errorFeedback).calibrate(cal));
+        assertTrue(e.getMessage().startsWith("conv1: learned rounding quantizes a convolution weight"),
+                e.getMessage());
         assertEquals(Quantizer.linear(4), NetworkQuantization.of(net)
                 .weightQuantizers(Map.of("conv2", Quantizer.linear(4))).calibrate(cal).weights("conv2").orElseThrow()
                 .spec());

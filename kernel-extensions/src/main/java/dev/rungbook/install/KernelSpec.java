@@ -59,10 +59,22 @@ public final class KernelSpec {
         return prefix.resolve("share").resolve("jupyter").resolve("kernels");
     }
 
-    /** The command line the spec runs: java, {@code jvmOptions}, the jar or class path, then the kernel command. */
+    /** The JDK module of the Vector API, which the library's fused kernels use when the JVM loads it. */
+    static final String VECTOR_MODULE = "jdk.incubator.vector";
+
+    /**
+     * The command line the spec runs: java, {@code --add-modules jdk.incubator.vector} when this JDK has that module
+     * (the library's fused quantization kernels then run about twice as fast, with the same results; the JVM notes
+     * the incubating module once on the kernel's standard error), {@code jvmOptions}, the jar or class path, then the
+     * kernel command.
+     */
     public static List<String> argv(List<String> jvmOptions) {
         List<String> argv = new ArrayList<>();
         argv.add(Path.of(System.getProperty("java.home"), "bin", isWindows() ? "java.exe" : "java").toString());
+        if (java.lang.module.ModuleFinder.ofSystem().find(VECTOR_MODULE).isPresent()
+                && jvmOptions.stream().noneMatch(o -> o.contains(VECTOR_MODULE))) {
+            argv.add("--add-modules=" + VECTOR_MODULE);
+        }
         argv.addAll(jvmOptions);
         argv.add("-Djava.awt.headless=true");
         Path jar = runningJar();
@@ -141,7 +153,8 @@ public final class KernelSpec {
     private static String makeClassArchive(Path jar, List<String> jvmOptions, Path archive) throws IOException {
         List<String> cmd = new ArrayList<>();
         cmd.add(Path.of(System.getProperty("java.home"), "bin", isWindows() ? "java.exe" : "java").toString());
-        cmd.addAll(jvmOptions);
+        List<String> same = argv(jvmOptions);
+        cmd.addAll(same.subList(1, same.indexOf("-Djava.awt.headless=true")));
         cmd.add("-XX:ArchiveClassesAtExit=" + archive);
         cmd.add("-Djava.awt.headless=true");
         cmd.addAll(List.of("-jar", jar.toString(), "kernel", "warm-up"));

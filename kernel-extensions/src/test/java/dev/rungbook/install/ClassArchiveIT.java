@@ -35,8 +35,12 @@ class ClassArchiveIT {
         assertTrue(Files.size(archive) > 1_000_000, "archive of " + Files.size(archive) + " bytes");
         // Source: JDK 17 java(1) manual, "Application Class Data Sharing": with -Xshare:on the JVM exits with an
         // error when the archive cannot be used.
-        assertEquals(0, run(List.of(java, "-Xshare:on", "-XX:SharedArchiveFile=" + archive, "-Djava.awt.headless=true",
-                "-jar", JAR.toString(), "kernel", "warm-up")));
+        // The kernel's own command line (same module options as the training run), with -Xshare:on added and the
+        // warm-up cells instead of a connection.
+        List<String> warm = new ArrayList<>(argv.subList(0, argv.size() - 2));
+        warm.add(1, "-Xshare:on");
+        warm.add("warm-up");
+        assertEquals(0, run(warm));
     }
 
     private static int run(List<String> command) throws Exception {

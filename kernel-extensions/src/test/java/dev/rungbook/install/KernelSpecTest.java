@@ -29,7 +29,9 @@ class KernelSpecTest {
         assertEquals("message", spec.get("interrupt_mode").getAsString());
         List<String> argv = spec.getAsJsonArray("argv").asList().stream().map(e -> e.getAsString()).toList();
         assertEquals(Path.of(System.getProperty("java.home"), "bin", "java").toString(), argv.get(0));
-        assertEquals("-Xmx4g", argv.get(1));
+        boolean vector = java.lang.module.ModuleFinder.ofSystem().find("jdk.incubator.vector").isPresent();
+        assertEquals(vector ? List.of("--add-modules=jdk.incubator.vector", "-Xmx4g") : List.of("-Xmx4g"),
+                argv.subList(1, argv.indexOf("-Djava.awt.headless=true")));
         assertEquals(List.of("kernel", "run", "{connection_file}"), argv.subList(argv.size() - 3, argv.size()));
         for (int size : new int[] {32, 64}) {
             BufferedImage logo = ImageIO.read(dir.resolve("logo-" + size + "x" + size + ".png").toFile());

@@ -1,7 +1,6 @@
 package dev.rungbook.runner;
 
 import static org.junit.jupiter.api.Assertions.assertEquals;
-import static org.junit.jupiter.api.Assertions.assertFalse;
 import static org.junit.jupiter.api.Assertions.assertTrue;
 import static org.junit.jupiter.api.Assumptions.assumeTrue;
 
@@ -10,12 +9,10 @@ import com.google.gson.JsonObject;
 import dev.rungbook.install.KernelSpec;
 import dev.rungbook.testing.Fixtures;
 import java.io.IOException;
-import java.nio.charset.StandardCharsets;
 import java.nio.file.Files;
 import java.nio.file.Path;
 import java.util.ArrayList;
 import java.util.List;
-import java.util.concurrent.TimeUnit;
 import java.util.stream.Stream;
 import org.junit.jupiter.api.DynamicTest;
 import org.junit.jupiter.api.Test;
@@ -29,7 +26,6 @@ import org.junit.jupiter.api.TestFactory;
  */
 class NotebooksTest {
     private static final Path NOTEBOOKS = Path.of("..", "notebooks");
-    private static final String PYTHON = "/usr/bin/python3";
 
     static List<Path> notebooks() throws IOException {
         try (Stream<Path> s = Files.list(NOTEBOOKS)) {
@@ -91,52 +87,18 @@ class NotebooksTest {
         assertTrue(charts > 0, name + ": no chart rendered as image/png");
     }
 
-    @Test
-    void everyNotebookRunsCleanlyThroughJupyter() throws Exception {
-        assumeTrue(hasNbclient(), PYTHON + " with nbclient and nbformat is not available; Jupyter run skipped");
+    @TestFactory
+    Stream<DynamicTest> everyNotebookRunsCleanlyThroughJupyter() throws IOException {
+        // nbclient with the installed kernel, the path `rungbook demo` takes when Python has it.
         Path prefix = Fixtures.tempDir("nb-kernel").toAbsolutePath();
         KernelSpec.install(KernelSpec.prefixKernelsDir(prefix), KernelSpec.argv(List.of("-Xmx768m")));
-        Path outDir = Fixtures.tempDir("nb-jupyter").toAbsolutePath();
-        String script = String.join("\n",
-                "import sys, nbformat, nbclient",
-                "out = sys.argv[1]",
-                "for path in sys.argv[2:]:",
-                "    nb = nbformat.read(path, as_version=4)",
-                "    client = nbclient.NotebookClient(nb, kernel_name='rungbook', timeout=300,",
-                "        resources={'metadata': {'path': sys.argv[2].rsplit('/', 1)[0]}})",
-                "    client.execute()",
-                "    nbformat.write(nb, out + '/' + path.rsplit('/', 1)[1])",
-                "    print('EXECUTED', path)");
-        List<String> cmd = new ArrayList<>(List.of(PYTHON, "-c", script, outDir.toString()));
-        for (Path nb : notebooks()) {
-            cmd.add(nb.toAbsolutePath().normalize().toString());
-        }
-        ProcessBuilder pb = new ProcessBuilder(cmd).redirectErrorStream(true);
-        pb.environment().put("JUPYTER_PATH", prefix.resolve("share").resolve("jupyter").toString());
-        pb.environment().put("JUPYTER_PLATFORM_DIRS", "1");
-        Process p = pb.start();
-        byte[] bytes = p.getInputStream().readAllBytes();
-        assertTrue(p.waitFor(900, TimeUnit.SECONDS), "nbclient did not finish");
-        String log = new String(bytes, StandardCharsets.UTF_8);
-        assertEquals(0, p.exitValue(), log);
-        for (Path nb : notebooks()) {
-            assertTrue(log.contains("EXECUTED " + nb.toAbsolutePath().normalize()), log);
-            JsonObject executed = NotebookRunner.read(outDir.resolve(nb.getFileName()));
-            checkOutputs("Jupyter: " + nb, executed);
-        }
-        assertFalse(log.contains("CellExecutionError"), log);
-    }
-
-    private static boolean hasNbclient() {
-        try {
-            Process p = new ProcessBuilder(PYTHON, "-c", "import nbclient, nbformat").redirectErrorStream(true).start();
-            p.getInputStream().readAllBytes();
-            return p.waitFor(60, TimeUnit.SECONDS) && p.exitValue() == 0;
-        } catch (IOException e) {
-            return false;
-        } catch (InterruptedException e) {
-            Thread.currentThread().interrupt();
-            return false;
-        }
+        java.util.Optional<JupyterExecution> jupyter = JupyterExecution.find(prefix.resolve("share").resolve("jupyter"));
+        assumeTrue(jupyter.isPresent(), "no Python with nbclient and nbformat; Jupyter run skipped");
+        return notebooks().stream().map(nb -> DynamicTest.dynamicTest(nb.getFileName().toString(), () -> {
+            ExecutedNotebook done = jupyter.get().execute(nb, NOTEBOOKS);
+            assertEquals(List.of(), done.errors(), nb + " has failing cells through Jupyter");
+            assertEquals(done.codeCells(), done.executedCells());
+            checkOutputs("Jupyter: " + nb, done.notebook());
+        }));
     }
 }
