@@ -537,7 +537,10 @@ public final class Charts {
             for (int k = 0; k < cols.size(); k++) {
                 double v = values[r][k];
                 if (Double.isFinite(v)) {
-                    cells.add(new Number[] {k, rows.size() - 1 - r, v});
+                    // Three significant digits in the cell labels: XChart 4.0.3 prints the cell's number as given
+                    // (its value formatter does not reach the labels), so the number is rounded here.
+                    cells.add(new Number[] {k, rows.size() - 1 - r,
+                        Double.parseDouble(String.format(Locale.ROOT, "%.3g", v))});
                     lo = Math.min(lo, v);
                     hi = Math.max(hi, v);
                 }
@@ -711,25 +714,11 @@ public final class Charts {
      * crowds the axis; the labels in between are left blank and the vertical grid is off.
      */
     private static void integerXAxis(XYChart c, int n) {
-        long step = niceStep(n / 8.0);
-        c.getStyler().setXAxisTickLabelsFormattingFunction(d -> {
-            long v = Math.round(d);
-            return Math.abs(d - v) < 1e-9 && v % step == 0 ? Long.toString(v) : "";
-        });
+        // XChart places the ticks (about one per 74 px by default); integer labels only. A formatting function would
+        // make it tick every few points instead, and filtering those ticks left only "0" for long axes.
+        c.getStyler().setXAxisDecimalPattern("0");
+        c.getStyler().setXAxisTickMarkSpacingHint(n <= 12 ? Math.max(20, 480 / Math.max(1, n)) : 110);
         c.getStyler().setPlotGridVerticalLinesVisible(false);
-    }
-
-    /** The smallest of 1, 2, 5, 10, 20, 50, ... that is at least {@code raw}. */
-    static long niceStep(double raw) {
-        long step = 1;
-        while (true) {
-            for (long m : new long[] {1, 2, 5}) {
-                if (m * step >= raw) {
-                    return m * step;
-                }
-            }
-            step *= 10;
-        }
     }
 
     private static String display(Tensor t) {

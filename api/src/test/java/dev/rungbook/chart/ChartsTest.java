@@ -353,15 +353,6 @@ class ChartsTest {
         assertTrue(e.getMessage().contains("point 1"), e.getMessage());
     }
 
-    @Test
-    void niceStepsAreOneTwoFive() {
-        assertEquals(1, Charts.niceStep(0.3));
-        assertEquals(2, Charts.niceStep(1.5));
-        assertEquals(5, Charts.niceStep(4));
-        assertEquals(10, Charts.niceStep(8));
-        assertEquals(50, Charts.niceStep(25));
-    }
-
     private static List<Path> listing(Path dir) throws IOException {
         try (Stream<Path> s = Files.list(dir)) {
             return s.sorted().collect(Collectors.toCollection(ArrayList::new));
