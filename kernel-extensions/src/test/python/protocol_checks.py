@@ -1,5 +1,5 @@
 """Protocol-level checks of the Rungbook kernel through jupyter_client: output flood, bad signatures,
-interrupts (library call, interruption-checking loop, tight loop), and that the kernel still answers after
+interrupts (library call, interruption-checking loop, tight loop, a Rungbook library loop), and that the kernel still answers after
 exceptions, a StackOverflowError, an OutOfMemoryError and interrupts.
 
 Run with JUPYTER_PATH pointing at the kernel spec under test. Prints one line per check; exits 1 on failure.
@@ -207,6 +207,22 @@ def main():
                 and "nterrupt" in errors[0]["ename"] and took < 15
             check("interrupt: %s stops (%.1fs)" % (label, took), ok, str(errors)[:300])
             check("interrupt: kernel answers after %s" % label, value(kc, "kept + 1") == "6")
+
+        # A long library loop (adaptive rounding asked for 10^8 iterations) stops at the interrupt with the best state
+        # so far, as its contract says: the cell ends promptly with that result, and the kernel goes on.
+        code = ("var rnd = new java.util.Random(1); float[] wv = new float[64 * 64]; float[] xv = new float[256 * 64];\n"
+                "for (int i = 0; i < wv.length; i++) wv[i] = (float) rnd.nextGaussian();\n"
+                "for (int i = 0; i < xv.length; i++) xv[i] = (float) rnd.nextGaussian();\n"
+                "Quantizer.linear(4).rounding(Rounding.adaptive(Calibration.of(Tensor.of(xv, 256, 64)))"
+                ".iterations(100_000_000)).apply(Tensor.of(wv, 64, 64))")
+        start = time.time()
+        reply, msgs = execute(kc, code, timeout=60, interrupt_after=1.5, km=km)
+        took = time.time() - start
+        results = [m["content"]["data"]["text/plain"] for m in msgs if m["msg_type"] == "execute_result"]
+        check("interrupt: adaptive rounding stops with its best state so far (%.1fs)" % took,
+              reply["status"] == "ok" and results and results[0].startswith("Quantized [64, 64]") and took < 15,
+              str(reply)[:200] + str(results)[:200])
+        check("interrupt: kernel answers after adaptive rounding", value(kc, "kept + 1") == "6")
 
         # A restart (shutdown_request with restart) gives a clean session in a new process; the old one is gone.
         old_pid = kernel_pid(km)
