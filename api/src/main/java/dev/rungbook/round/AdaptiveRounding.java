@@ -265,8 +265,9 @@ public final class AdaptiveRounding implements LayerRounding {
             order[i] = i;
         }
         SplittableRandom rng = new SplittableRandom(seed);
-        double[] losses = new double[iterations];
-        double[] undecided = new double[iterations];
+        // The histories grow with the iterations done, so that asking for many (and interrupting) costs no memory.
+        double[] losses = new double[Math.min(iterations, 1 << 14)];
+        double[] undecided = new double[losses.length];
         int warm = warmupIterations();
         int done = 0;
         boolean interrupted = false;
@@ -285,6 +286,11 @@ public final class AdaptiveRounding implements LayerRounding {
                 }
                 double loss = obj.lossAndGradient(v, order, count, betaAt(t), t >= warm, grad);
                 adam(v, grad, m1, m2, t + 1);
+                if (t == losses.length) {
+                    int grown = (int) Math.min(iterations, 2L * losses.length);
+                    losses = Arrays.copyOf(losses, grown);
+                    undecided = Arrays.copyOf(undecided, grown);
+                }
                 losses[t] = loss;
                 undecided[t] = obj.undecidedShare();
                 done = t + 1;

@@ -158,6 +158,30 @@ class LearnedRoundingTest {
     }
 
     @Test
+    void askingForAHugeIterationCountCostsNoMemoryUntilTheIterationsRun() {
+        // The loss histories grow with the work done: 2^31-1 iterations asked, 20 000 done, then an interrupt
+        // (before the fix the histories were allocated up front: 16 GiB, an OutOfMemoryError in a kernel).
+        float[] w = gaussian(113, 4 * 8, 0.5);
+        float[] x = correlatedInputs(114, 64, 8, 4);
+        GridAssignment g = perRowGrid(w, 4, 8, 3);
+        Progress stop = (task, done, total, loss) -> {
+            if (done == 20_000 && total == Integer.MAX_VALUE) {
+                Thread.currentThread().interrupt();
+            }
+        };
+        RoundingRun run;
+        try {
+            run = AdaptiveRounding.of(Calibration.of(tensor(x, 64, 8))).iterations(Integer.MAX_VALUE)
+                    .run(tensor(w, 4, 8), g, stop);
+        } finally {
+            Thread.interrupted();
+        }
+        assertTrue(run.interrupted());
+        assertEquals(20_000, run.steps());
+        assertEquals(20_000, run.lossHistory().length);
+    }
+
+    @Test
     void interruptionStopsCleanlyWithTheBestStateSoFar() {
         int rows = 8;
         int cols = 16;
