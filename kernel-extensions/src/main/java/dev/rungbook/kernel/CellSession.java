@@ -60,6 +60,19 @@ public final class CellSession implements AutoCloseable {
         return lines;
     }
 
+    /** What a failed cell shows: the Jupyter error's name, value and traceback. */
+    public record Failure(String ename, String evalue, List<String> traceback) {
+        /** The error parts of a compile or runtime failure. */
+        public static Failure of(CellResult failure) {
+            if (failure instanceof CellResult.CompileFailure c) {
+                return new Failure("CompileError", c.problems().isEmpty() ? "" : c.problems().get(0).message(),
+                        compileTraceback(c));
+            }
+            CellResult.RuntimeFailure f = (CellResult.RuntimeFailure) failure;
+            return new Failure(f.errorName(), f.message(), f.traceback());
+        }
+    }
+
     @Override
     public void close() {
         runner.close();

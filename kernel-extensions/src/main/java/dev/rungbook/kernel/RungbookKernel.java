@@ -167,27 +167,15 @@ public final class RungbookKernel extends BaseKernel {
         String plain = null;
         if (result instanceof CellResult.Success s) {
             if (s.hasValue() && !silent) {
-                MimeBundle bundle = renderSafely(s.value().orElse(null));
+                MimeBundle bundle = Notebook.renderSafely(s.value().orElse(null));
                 plain = bundle.plainText();
                 env.publish(new PublishExecuteResult(count, toDisplayData(bundle, null)));
             }
             env.reply(new ExecuteOkReply(count, payload));
         } else {
-            String ename;
-            String evalue;
-            List<String> traceback;
-            if (result instanceof CellResult.CompileFailure c) {
-                ename = "CompileError";
-                evalue = c.problems().isEmpty() ? "" : c.problems().get(0).message();
-                traceback = compileTraceback(c);
-            } else {
-                CellResult.RuntimeFailure f = (CellResult.RuntimeFailure) result;
-                ename = f.errorName();
-                evalue = f.message();
-                traceback = f.traceback();
-            }
-            env.publish(new PublishError(ename, evalue, traceback));
-            ErrorReply reply = new ErrorReply(ename, evalue, traceback);
+            CellSession.Failure f = CellSession.Failure.of(result);
+            env.publish(new PublishError(f.ename(), f.evalue(), f.traceback()));
+            ErrorReply reply = new ErrorReply(f.ename(), f.evalue(), f.traceback());
             reply.setExecutionCount(count);
             env.replyError(MessageType.EXECUTE_REPLY.error(), reply);
             if (request.shouldStopOnError()) {
@@ -225,23 +213,10 @@ public final class RungbookKernel extends BaseKernel {
         return target.matches("[\\p{L}_$][\\p{L}\\p{N}_$.]*") ? target : null;
     }
 
-    private static List<String> compileTraceback(CellResult.CompileFailure c) {
-        return CellSession.compileTraceback(c);
-    }
-
     private static CellResult kernelFailure(Throwable e) {
         LOG.log(Level.WARNING, "cell execution failed inside the kernel", e);
         return new CellResult.RuntimeFailure(e.getClass().getName(), String.valueOf(e.getMessage()),
                 new Tracebacks(id -> null).format(Tracebacks.of(e)), false);
-    }
-
-    private static MimeBundle renderSafely(Object value) {
-        try {
-            return Notebook.renderers().render(value);
-        } catch (RuntimeException | LinkageError | OutOfMemoryError e) {
-            return MimeBundle.text(value == null ? "null" : value.getClass().getName() + " (rendering failed: " + e
-                    + ")");
-        }
     }
 
     static DisplayData toDisplayData(MimeBundle bundle, String displayId) {

@@ -81,6 +81,19 @@ public final class Notebook {
     }
 
     /**
+     * The value rendered by {@link #renderers()}; if a renderer fails, plain text naming the value's class and the
+     * failure instead (a broken renderer must not fail the cell).
+     */
+    public static MimeBundle renderSafely(Object value) {
+        try {
+            return RENDERERS.render(value);
+        } catch (RuntimeException | LinkageError | OutOfMemoryError e) {
+            return MimeBundle.text(value == null ? "null" : value.getClass().getName() + " (rendering failed: " + e
+                    + ")");
+        }
+    }
+
+    /**
      * Binds {@code sink} to the current thread (and threads it starts from now on); kernel use. Returns the
      * previous binding so that callers can restore it.
      */

@@ -9,7 +9,6 @@ import com.google.gson.JsonParser;
 import dev.rungbook.kernel.CellOutput;
 import dev.rungbook.kernel.CellResult;
 import dev.rungbook.kernel.CellSession;
-import dev.rungbook.render.MimeBundle;
 import dev.rungbook.render.Notebook;
 import dev.rungbook.render.OutputSink;
 import java.io.IOException;
@@ -102,24 +101,12 @@ public final class NotebookRunner {
                 }
                 if (result instanceof CellResult.Success s) {
                     if (s.hasValue()) {
-                        record.result(render(s.value().orElse(null)), count);
+                        record.result(Notebook.renderSafely(s.value().orElse(null)), count);
                     }
                 } else {
-                    String ename;
-                    String evalue;
-                    List<String> traceback;
-                    if (result instanceof CellResult.CompileFailure c) {
-                        ename = "CompileError";
-                        evalue = c.problems().isEmpty() ? "" : c.problems().get(0).message();
-                        traceback = CellSession.compileTraceback(c);
-                    } else {
-                        CellResult.RuntimeFailure f = (CellResult.RuntimeFailure) result;
-                        ename = f.errorName();
-                        evalue = f.message();
-                        traceback = f.traceback();
-                    }
-                    record.error(ename, evalue, traceback);
-                    errors.add(new ExecutedNotebook.CellError(i, count, ename, evalue));
+                    CellSession.Failure f = CellSession.Failure.of(result);
+                    record.error(f.ename(), f.evalue(), f.traceback());
+                    errors.add(new ExecutedNotebook.CellError(i, count, f.ename(), f.evalue()));
                     stopped = !continueOnError;
                 }
                 cell.addProperty("execution_count", count);
@@ -127,15 +114,6 @@ public final class NotebookRunner {
             }
         }
         return new ExecutedNotebook(source, nb, codeCells, executed, errors);
-    }
-
-    private static MimeBundle render(Object value) {
-        try {
-            return Notebook.renderers().render(value);
-        } catch (RuntimeException | LinkageError | OutOfMemoryError e) {
-            return MimeBundle.text(value == null ? "null" : value.getClass().getName() + " (rendering failed: " + e
-                    + ")");
-        }
     }
 
     /**
