@@ -120,6 +120,33 @@ public final class Network {
     }
 
     /**
+     * The network that an architecture text describes, with its layers read from {@code tensors} by name, e.g.
+     * {@code Network.fromArchitecture(ckpt.tensors(), ckpt.metadata().get("architecture"))} for the sample
+     * checkpoints. The grammar: {@code NAME [shape] [stride S] [padding P] [eps E]} for a layer read from tensors
+     * (a batch norm when {@code NAME.running_mean} exists, else a convolution for a rank-4 {@code NAME.weight} and a
+     * linear layer for rank 2), {@code relu}, {@code relu6}, {@code identity}, {@code flatten}, {@code maxpool K/S},
+     * {@code avgpool K/S}, joined by {@code ->}; then optional notes after {@code ;}: {@code batch norm eps E} and
+     * {@code widths [..]} (checked). Example: {@code conv1 [8,1,3,3] stride 1 padding 1 -> bn1 -> relu -> maxpool 2/2
+     * -> flatten -> fc [4,512]}.
+     *
+     * @throws IllegalArgumentException naming the step and token that do not fit, or the tensor that is missing
+     */
+    public static Network fromArchitecture(Map<String, Tensor> tensors, String architecture) {
+        return ArchitectureText.parse(tensors, architecture);
+    }
+
+    /**
+     * This network's architecture text (see {@link #fromArchitecture}): {@code fromArchitecture(parameters(),
+     * architecture())} computes the same function. Parameter-free layers are written by kind, not by name.
+     *
+     * @throws IllegalStateException if a layer is not one that an architecture text can name (e.g. a calibrated
+     *     activation of a simulated network)
+     */
+    public String architecture() {
+        return ArchitectureText.format(this);
+    }
+
+    /**
      * Starts a network built from checkpoint tensors by name (for convolutional networks and anything that is not a
      * plain MLP). For example:
      *

@@ -18,10 +18,13 @@ import java.io.UncheckedIOException;
 import java.nio.file.Files;
 import java.nio.file.Path;
 import java.util.ArrayList;
+import java.util.Arrays;
+import java.util.HashSet;
 import java.util.LinkedHashMap;
 import java.util.List;
 import java.util.Locale;
 import java.util.Map;
+import java.util.Set;
 import java.util.concurrent.Callable;
 import picocli.CommandLine;
 import picocli.CommandLine.Command;
@@ -36,13 +39,16 @@ import picocli.CommandLine.Spec;
             "Quantizes each layer alone with each candidate, measures the network's output error on DATA, then picks "
                 + "one candidate per layer that minimises the summed error while the quantized weights (codes, "
                 + "scales, zero points; biases stay float and are not counted) fit the budget.",
-            "The network is read from FILE as a multilayer perceptron: every NAME.weight of rank 2 that has a "
-                + "NAME.bias, in file order, with a ReLU between consecutive layers (override the names with "
-                + "--layers). Other architectures are not read from checkpoints yet.",
+            "The network is read from FILE by its architecture text (--network, else the file's 'architecture' "
+                + "metadata, which the sample checkpoints carry), or else as a multilayer perceptron: every "
+                + "NAME.weight of rank 2 that has a NAME.bias, in file order, with a ReLU between consecutive layers "
+                + "(override the names with --layers).",
             "Exit codes: 0 ok, 2 usage error, 1 failure."},
         footer = {"", "Example:", "  rungbook plan sample-tensors/conveyor-mlp.f32.safetensors --budget 40KiB \\",
             "      --data sample-tensors/conveyor-validation.npz \\",
-            "      --candidates int8 int4 'g24=int4 per-group(1,24)' --out plan.json"})
+            "      --candidates int8 int4 'g24=int4 per-group(1,24)' --out plan.json",
+            "  rungbook plan sample-tensors/thermal-cnn.f32.safetensors --budget 2KiB \\",
+            "      --data sample-tensors/thermal-validation.npz --out cnn-plan.json"})
 final class PlanCommand implements Callable<Integer> {
     @Spec
     CommandSpec spec;
@@ -75,8 +81,15 @@ final class PlanCommand implements Callable<Integer> {
     int rerank;
 
     @Option(names = "--layers", split = ",", paramLabel = "NAME",
-            description = "Linear layer names in order (default: found in FILE, see above).")
+            description = "Linear layer names of a multilayer perceptron, in order (default: found in FILE, see "
+                + "above).")
     List<String> layers;
+
+    @Option(names = "--network", paramLabel = "TEXT",
+            description = {"The architecture text, e.g. 'conv1 stride 1 padding 1 -> bn1 -> relu -> maxpool 2/2 "
+                + "-> flatten -> fc' (layers read by name from FILE; grammar: Network.fromArchitecture). Default: "
+                + "FILE's 'architecture' metadata when it has one."})
+    String network;
 
     @Option(names = "--out", paramLabel = "PLAN.json",
             description = "Write the plan here (atomically); without it the plan JSON goes to standard output and "
@@ -110,7 +123,7 @@ final class PlanCommand implements Callable<Integer> {
         }
         PrintWriter summary = out == null ? err : stdout;
         try {
-            Network net = readNetwork(file, layers);
+            Network net = readNetwork(file, network, layers);
             Tensor calibration = null;
             try (Checkpoint d = Checkpoint.open(data)) {
                 if (!d.contains("inputs")) {
@@ -181,9 +194,18 @@ final class PlanCommand implements Callable<Integer> {
         return out;
     }
 
-    /** The MLP of {@code file}: the given linear names, or every NAME.weight of rank 2 with a NAME.bias. */
-    static Network readNetwork(Path file, List<String> names) {
+    /**
+     * The network of {@code file}: from the architecture text (given, or the file's {@code architecture} metadata
+     * unless linear names are given), else the MLP of the given linear names or of every NAME.weight of rank 2 with a
+     * NAME.bias.
+     */
+    static Network readNetwork(Path file, String architecture, List<String> names) {
         try (Checkpoint c = Checkpoint.open(file)) {
+            String text = architecture != null ? architecture
+                    : names == null || names.isEmpty() ? c.metadata().get("architecture") : null;
+            if (text != null) {
+                return fromArchitecture(file, c, text, architecture == null);
+            }
             List<String> linear = new ArrayList<>();
             if (names != null && !names.isEmpty()) {
                 linear.addAll(names);
@@ -216,6 +238,24 @@ final class PlanCommand implements Callable<Integer> {
             } catch (IllegalArgumentException e) {
                 throw new IllegalArgumentException(file + ": " + e.getMessage(), e);
             }
+        }
+    }
+
+    private static Network fromArchitecture(Path file, Checkpoint c, String text, boolean fromMetadata) {
+        Set<String> tokens = new HashSet<>(Arrays.asList(text.split("[^A-Za-z0-9_.]+")));
+        Map<String, Tensor> loaded = new LinkedHashMap<>();
+        for (String n : c.names()) {
+            int dot = n.lastIndexOf('.');
+            if (dot > 0 && tokens.contains(n.substring(0, dot))) {
+                Tensor t = c.tensor(n);
+                loaded.put(n, Tensor.of(t.toFloatArray(), t.shape()).withName(n));
+            }
+        }
+        try {
+            return Network.fromArchitecture(loaded, text);
+        } catch (IllegalArgumentException e) {
+            throw new IllegalArgumentException(file + (fromMetadata ? " (its 'architecture' metadata)" : "") + ": "
+                    + e.getMessage(), e);
         }
     }
 

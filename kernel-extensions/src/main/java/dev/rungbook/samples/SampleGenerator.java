@@ -108,10 +108,17 @@ public final class SampleGenerator {
                 Linear.initial("fc", 256, SolarThermalScenario.CLASSES.size(), seed + 2));
     }
 
+    /**
+     * The thermal conv net's architecture text (see {@code Network.fromArchitecture}), written to the checkpoints'
+     * {@code architecture} metadata.
+     */
+    static final String THERMAL_ARCHITECTURE = "conv1 [8,1,3,3] stride 1 padding 1 -> bn1 -> relu -> maxpool 2/2 -> "
+            + "conv2 [16,8,3,3] stride 1 padding 1 -> bn2 -> relu -> maxpool 2/2 -> flatten -> fc [4,256]; "
+            + "batch norm eps 1e-5";
+
     /** The thermal conv net from checkpoint tensors (the layout {@link #initialThermalNet} trains). */
     public static Network thermalNet(Map<String, Tensor> tensors) {
-        return Network.from(tensors).conv2d("conv1", 1, 1).batchNorm("bn1").relu().maxPool(2, 2)
-                .conv2d("conv2", 1, 1).batchNorm("bn2").relu().maxPool(2, 2).flatten().linear("fc").build();
+        return Network.fromArchitecture(tensors, THERMAL_ARCHITECTURE);
     }
 
     private static double[] generateThermal(Path folder, Progress progress, PrintStream log) {
@@ -127,8 +134,7 @@ public final class SampleGenerator {
         log.printf(Locale.ROOT, "thermal conv net float accuracy: validation %.4f, test %.4f%n", va, ta);
         Map<String, String> meta = new LinkedHashMap<>();
         meta.put("scenario", "solar farm drone thermography, 16x16 tiles (Rungbook sample, simulated)");
-        meta.put("architecture", "conv1 [8,1,3,3] stride 1 padding 1 -> bn1 -> relu -> maxpool 2/2 -> conv2 [16,8,3,3] "
-                + "stride 1 padding 1 -> bn2 -> relu -> maxpool 2/2 -> flatten -> fc [4,256]; batch norm eps 1e-5");
+        meta.put("architecture", THERMAL_ARCHITECTURE);
         meta.put("inputs", "[N, 1, 16, 16] module temperature rise over ambient, in units of 10 K");
         meta.put("classes", String.join(", ", SolarThermalScenario.CLASSES));
         meta.put("validation_accuracy", String.format(Locale.ROOT, "%.4f", va));

@@ -136,6 +136,25 @@ class PlanCommandTest {
     }
 
     @Test
+    void readsAConvNetFromItsArchitectureMetadataOrFromNetwork(@TempDir Path dir) {
+        String cnn = "../sample-tensors/thermal-cnn.f32.safetensors";
+        Path out = dir.resolve("cnn-plan.json");
+        // f32 weights: conv1 72 + conv2 1152 + fc 1024 values = 8,992 bytes; 2 KiB needs about 4 bits a weight.
+        Run r = run("plan", cnn, "--budget", "2KiB", "--data", "../sample-tensors/thermal-validation.npz",
+                "--candidates", "int8", "int4", "int2", "--out", out.toString());
+        assertEquals(0, r.code(), r.err());
+        Plan p = Plan.read(out);
+        assertEquals(List.of("conv1", "conv2", "fc"), p.layers());
+        assertTrue(Long.parseLong(p.info().get("bytes")) <= 2048, p.info().toString());
+        assertTrue(r.out().contains("accuracy: predicted"), r.out());
+        Run bad = run("plan", cnn, "--budget", "2KiB", "--data", "../sample-tensors/thermal-validation.npz",
+                "--network", "conv1 padding 1 -> bn1 -> relu -> maxpool 2/2 -> conv9");
+        assertEquals(1, bad.code());
+        assertTrue(bad.err().contains("thermal-cnn.f32.safetensors: architecture step 5 'conv9'")
+                && bad.err().contains("no tensor 'conv9.weight'"), bad.err());
+    }
+
+    @Test
     void helpDescribesTheCommand() {
         Run r = run("plan", "--help");
         assertEquals(0, r.code());

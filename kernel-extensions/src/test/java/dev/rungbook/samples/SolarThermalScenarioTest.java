@@ -63,6 +63,9 @@ class SolarThermalScenarioTest {
             meta = c.metadata();
         }
         Network net = SampleGenerator.thermalNet(t);
+        // The file names its own architecture, and it is the layout the generator trains.
+        assertEquals(SampleGenerator.THERMAL_ARCHITECTURE, meta.get("architecture"));
+        assertTrue(meta.get("architecture").startsWith(SampleGenerator.initialThermalNet(1).architecture() + ";"));
         Dataset test = Dataset.load(SAMPLES.resolve("thermal-test.npz"));
         assertEquals(meta.get("test_accuracy"), String.format(Locale.ROOT, "%.4f", net.accuracy(test)));
         // folding the batch norms keeps the predictions (up to float rounding at near ties)
