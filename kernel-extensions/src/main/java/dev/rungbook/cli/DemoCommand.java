@@ -2,17 +2,13 @@ package dev.rungbook.cli;
 
 import dev.rungbook.install.KernelSpec;
 import dev.rungbook.io.Checkpoint;
-import dev.rungbook.metrics.TensorStats;
 import dev.rungbook.runner.JupyterExecution;
 import dev.rungbook.runner.NotebookRunner;
-import dev.rungbook.tensor.Tensor;
 import java.io.IOException;
 import java.io.PrintStream;
 import java.nio.file.Files;
 import java.nio.file.Path;
-import java.util.Arrays;
 import java.util.List;
-import java.util.Locale;
 import java.util.Optional;
 import java.util.concurrent.Callable;
 import java.util.stream.Collectors;
@@ -154,20 +150,10 @@ final class DemoCommand implements Callable<Integer> {
         return n.endsWith(".safetensors") || n.endsWith(".npz") || n.endsWith(".npy");
     }
 
-    static void inspect(Path file, PrintStream out) throws IOException {
+    static void inspect(Path file, PrintStream out) {
         try (Checkpoint c = Checkpoint.open(file)) {
-            out.printf(Locale.ROOT, "%n%s (%,d bytes, %d tensors)%n", file.getFileName(), Files.size(file),
-                    c.names().size());
-            c.metadata().forEach((k, v) -> out.printf(Locale.ROOT, "  %s: %s%n", k, v));
-            out.printf(Locale.ROOT, "  %-14s %-6s %-12s %10s %10s %10s %10s %8s%n", "tensor", "dtype", "shape", "min",
-                    "max", "mean", "std", "kurt");
-            for (String name : c.names()) {
-                Tensor t = c.tensor(name);
-                TensorStats s = TensorStats.of(t);
-                out.printf(Locale.ROOT, "  %-14s %-6s %-12s %10.4g %10.4g %10.4g %10.4g %8.2f%n", name, t.dtype(),
-                        Arrays.toString(t.shape()).replace(" ", ""), s.min(), s.max(), s.mean(), s.std(),
-                        s.kurtosis());
-            }
+            out.println();
+            out.print(InspectCommand.describe(c));
         }
     }
 }

@@ -47,20 +47,7 @@ final class InspectCommand implements Callable<Integer> {
         PrintWriter out = spec.commandLine().getOut();
         return Failures.guard("inspect", spec.commandLine().getErr(), () -> {
             try (Checkpoint c = Checkpoint.open(file)) {
-                List<String> names = c.names();
-                Progress bar = TerminalProgress.toStderr();
-                List<double[]> stats = new ArrayList<>();
-                for (int i = 0; i < names.size(); i++) {
-                    TensorInfo info = c.info(names.get(i));
-                    boolean load = !noStats && info.fitsInTensor();
-                    stats.add(load ? summary(TensorStats.of(c.tensor(names.get(i)))) : null);
-                    if (!noStats && !json) {
-                        bar.update("inspect " + file.getFileName(), i + 1, names.size(), Double.NaN);
-                    }
-                }
-                if (!noStats && !json && !names.isEmpty()) {
-                    bar.finish("inspect");
-                }
+                List<double[]> stats = stats(c, !noStats, json ? Progress.silent() : TerminalProgress.toStderr());
                 out.print(json ? json(c, stats) : text(c, stats));
                 out.flush();
             }
@@ -68,9 +55,35 @@ final class InspectCommand implements Callable<Integer> {
         });
     }
 
-    /** The numbers shown, so that no tensor stays referenced once its statistics are known. */
+    /** The text table of {@code c} with statistics, as {@code rungbook inspect FILE} prints it (the demo's too). */
+    static String describe(Checkpoint c) {
+        return text(c, stats(c, true, Progress.silent()));
+    }
+
+    /** Per tensor the numbers shown (null when not read), so that no tensor stays referenced once they are known. */
+    private static List<double[]> stats(Checkpoint c, boolean read, Progress bar) {
+        List<String> names = c.names();
+        List<double[]> stats = new ArrayList<>();
+        String task = "inspect " + c.path().getFileName();
+        for (int i = 0; i < names.size(); i++) {
+            TensorInfo info = c.info(names.get(i));
+            stats.add(read && info.fitsInTensor() ? summary(TensorStats.of(c.tensor(names.get(i)))) : null);
+            if (read) {
+                bar.update(task, i + 1, names.size(), Double.NaN);
+            }
+        }
+        if (read && !names.isEmpty()) {
+            bar.finish(task);
+        }
+        return stats;
+    }
+
+    private static final String[] STATS = {"min", "max", "mean", "std", "max|x|", "ex.kurt", "nan", "inf"};
+    private static final String[] JSON_KEYS = {"min", "max", "mean", "std", "abs_max", "excess_kurtosis"};
+
     private static double[] summary(TensorStats s) {
-        return new double[] {s.min(), s.max(), s.mean(), s.std(), s.absMax(), s.nanCount(), s.infCount()};
+        return new double[] {s.min(), s.max(), s.mean(), s.std(), s.absMax(), s.kurtosis(), s.nanCount(),
+            s.infCount()};
     }
 
     private static String shape(long[] s) {
@@ -81,8 +94,11 @@ final class InspectCommand implements Callable<Integer> {
         List<String> names = c.names();
         List<String[]> rows = new ArrayList<>();
         boolean withStats = stats.stream().anyMatch(s -> s != null);
-        rows.add(withStats ? new String[] {"name", "dtype", "shape", "elements", "min", "max", "mean", "std", "max|x|",
-            "nan", "inf"} : new String[] {"name", "dtype", "shape", "elements"});
+        List<String> header = new ArrayList<>(List.of("name", "dtype", "shape", "elements"));
+        if (withStats) {
+            header.addAll(List.of(STATS));
+        }
+        rows.add(header.toArray(new String[0]));
         long total = 0;
         for (int i = 0; i < names.size(); i++) {
             TensorInfo info = c.info(names.get(i));
@@ -91,14 +107,8 @@ final class InspectCommand implements Callable<Integer> {
             List<String> r = new ArrayList<>(List.of(info.name(), info.dtype().safetensorsName(), shape(info.shape()),
                     Long.toString(info.elementCount())));
             if (withStats) {
-                if (s == null) {
-                    r.addAll(List.of("-", "-", "-", "-", "-", "-", "-"));
-                } else {
-                    for (int k = 0; k < 5; k++) {
-                        r.add(TableRenderer.number(s[k]));
-                    }
-                    r.add(Long.toString((long) s[5]));
-                    r.add(Long.toString((long) s[6]));
+                for (int k = 0; k < STATS.length; k++) {
+                    r.add(s == null ? "-" : k < JSON_KEYS.length ? TableRenderer.number(s[k]) : Long.toString((long) s[k]));
                 }
             }
             rows.add(r.toArray(new String[0]));
@@ -158,12 +168,11 @@ final class InspectCommand implements Callable<Integer> {
                 o.add("stats", JsonNull.INSTANCE);
             } else {
                 JsonObject st = new JsonObject();
-                String[] keys = {"min", "max", "mean", "std", "abs_max"};
-                for (int k = 0; k < keys.length; k++) {
-                    st.add(keys[k], Double.isFinite(s[k]) ? num(s[k]) : JsonNull.INSTANCE);
+                for (int k = 0; k < JSON_KEYS.length; k++) {
+                    st.add(JSON_KEYS[k], Double.isFinite(s[k]) ? num(s[k]) : JsonNull.INSTANCE);
                 }
-                st.addProperty("nan", (long) s[5]);
-                st.addProperty("inf", (long) s[6]);
+                st.addProperty("nan", (long) s[JSON_KEYS.length]);
+                st.addProperty("inf", (long) s[JSON_KEYS.length + 1]);
                 o.add("stats", st);
             }
             ts.add(o);

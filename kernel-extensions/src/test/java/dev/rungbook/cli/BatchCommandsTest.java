@@ -101,6 +101,7 @@ class BatchCommandsTest {
         assertEquals(d.getMax(), st.get("max").getAsDouble(), 0);
         assertEquals(d.getMean(), st.get("mean").getAsDouble(), 1e-12);
         assertEquals(d.getStandardDeviation(), st.get("std").getAsDouble(), 1e-9);
+        assertEquals(d.getKurtosis(), st.get("excess_kurtosis").getAsDouble(), 1e-9);
         Run n = run("inspect", ckpt.toString(), "--no-stats", "--json");
         assertTrue(JsonParser.parseString(n.out()).getAsJsonObject().getAsJsonArray("tensors").get(0)
                 .getAsJsonObject().get("stats").isJsonNull());
