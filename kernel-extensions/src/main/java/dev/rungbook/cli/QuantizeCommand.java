@@ -2,6 +2,7 @@ package dev.rungbook.cli;
 
 import dev.rungbook.io.Checkpoint;
 import dev.rungbook.metrics.ErrorReport;
+import dev.rungbook.plan.Plan;
 import dev.rungbook.quant.Export;
 import dev.rungbook.quant.Quantized;
 import dev.rungbook.quant.Quantizer;
@@ -11,8 +12,10 @@ import java.io.PrintWriter;
 import java.nio.file.Files;
 import java.nio.file.Path;
 import java.util.ArrayList;
+import java.util.LinkedHashMap;
 import java.util.List;
 import java.util.Locale;
+import java.util.Map;
 import java.util.concurrent.Callable;
 import org.knowm.xchart.internal.chartpart.IChart;
 import picocli.CommandLine.Command;
@@ -43,9 +46,14 @@ final class QuantizeCommand implements Callable<Integer> {
     @Parameters(index = "0", paramLabel = "FILE", description = "The checkpoint to quantize.")
     Path file;
 
-    @Option(names = "--spec", required = true, paramLabel = "SPEC", converter = SpecConverter.class,
+    @Option(names = "--spec", paramLabel = "SPEC", converter = SpecConverter.class,
             description = SpecConverter.HELP)
     Quantizer quantizer;
+
+    @Option(names = "--plan", paramLabel = "PLAN.json", description = "Instead of --spec: a plan written by "
+            + "'rungbook plan'; each planned LAYER.weight is quantized with its layer's spec, every other tensor is "
+            + "copied unchanged.")
+    Path planFile;
 
     @Mixin
     TensorSelection selection;
@@ -70,6 +78,13 @@ final class QuantizeCommand implements Callable<Integer> {
         if (!out.getFileName().toString().toLowerCase(Locale.ROOT).endsWith(".safetensors")) {
             throw new ParameterException(spec.commandLine(), "--out must name a .safetensors file, got " + out);
         }
+        if ((quantizer == null) == (planFile == null)) {
+            throw new ParameterException(spec.commandLine(), "give exactly one of --spec SPEC and --plan PLAN.json");
+        }
+        if (planFile != null && !selection.globs.isEmpty()) {
+            throw new ParameterException(spec.commandLine(), "--tensors does not apply with --plan (the plan names "
+                    + "its tensors)");
+        }
         if (report != null && Report.kind(report) == null) {
             throw new ParameterException(spec.commandLine(), "--report must end in .html, .json or .csv, got "
                     + report);
@@ -82,11 +97,28 @@ final class QuantizeCommand implements Callable<Integer> {
         if (!Files.isRegularFile(file)) {
             throw new IllegalArgumentException("no checkpoint file at " + file.toAbsolutePath());
         }
+        Plan plan = planFile == null ? null : Plan.read(planFile);
         try (Checkpoint c = Checkpoint.open(file)) {
             Export e = Export.of(c);
             List<String> globs = selection.globsOrAll();
-            for (String g : globs) {
-                e = e.spec(g, quantizer);
+            String what;
+            if (plan != null) {
+                Map<String, Quantizer> byTensor = new LinkedHashMap<>();
+                for (String layer : plan.layers()) {
+                    String name = layer + ".weight";
+                    if (!c.contains(name)) {
+                        throw new IllegalArgumentException(planFile + " plans layer '" + layer + "', but " + file
+                                + " has no tensor '" + name + "'; names: " + preview(c.names()));
+                    }
+                    byTensor.put(name, plan.spec(layer));
+                }
+                e = e.specs(byTensor);
+                what = "the plan " + planFile.getFileName() + " (" + plan.layers().size() + " layers)";
+            } else {
+                for (String g : globs) {
+                    e = e.spec(g, quantizer);
+                }
+                what = "'" + (SpecText.hasText(quantizer) ? quantizer.toText() : quantizer.label()) + "'";
             }
             if (keepUnfit) {
                 e = e.keepUnfit();
@@ -112,10 +144,9 @@ final class QuantizeCommand implements Callable<Integer> {
             long outBytes = Files.size(out);
             Table table = rows.table();
             Table summary = ResultTables.summary(table);
-            stdout.printf(Locale.ROOT, "%s: %d of %d tensors %s with '%s' -> %s (%d bytes, %.3f of the input's %d)%n",
-                    file, selected, c.names().size(), dequantized ? "quantized and dequantized" : "quantized",
-                    SpecText.hasText(quantizer) ? quantizer.toText() : quantizer.label(), out, outBytes,
-                    outBytes / (double) Math.max(1, inBytes), inBytes);
+            stdout.printf(Locale.ROOT, "%s: %d of %d tensors %s with %s -> %s (%d bytes, %.3f of the input's %d)%n",
+                    file, selected, c.names().size(), dequantized ? "quantized and dequantized" : "quantized", what,
+                    out, outBytes, outBytes / (double) Math.max(1, inBytes), inBytes);
             stdout.print(ResultTables.text(summary));
             if (report != null) {
                 List<IChart> charts = new ArrayList<>();
@@ -125,7 +156,8 @@ final class QuantizeCommand implements Callable<Integer> {
                 }
                 List<String> notes = List.of("Input: " + file + " (" + inBytes + " bytes). Output: " + out + " ("
                         + outBytes + " bytes" + (dequantized ? ", dequantized float32" : ", quantized export") + ").",
-                        "Spec: " + quantizer.label() + ". " + selected + " of " + c.names().size()
+                        (plan != null ? "Plan: " + planFile + " (" + plan.specs() + ")" : "Spec: " + quantizer.label())
+                        + ". " + selected + " of " + c.names().size()
                         + " tensors quantized; the others were copied unchanged.",
                         "bits_per_weight and bytes count bit-packed codes plus scales and zero points.");
                 Report.write(report, "rungbook quantize " + file.getFileName(), notes, summary, table, charts);

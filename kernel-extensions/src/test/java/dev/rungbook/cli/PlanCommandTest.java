@@ -1,11 +1,13 @@
 package dev.rungbook.cli;
 
+import static org.junit.jupiter.api.Assertions.assertArrayEquals;
 import static org.junit.jupiter.api.Assertions.assertEquals;
 import static org.junit.jupiter.api.Assertions.assertTrue;
 
 import dev.rungbook.io.Checkpoint;
 import dev.rungbook.plan.Plan;
 import dev.rungbook.quant.Quantized;
+import dev.rungbook.quant.QuantizedCheckpoint;
 import dev.rungbook.tensor.Tensor;
 import java.io.PrintWriter;
 import java.io.StringWriter;
@@ -63,6 +65,38 @@ class PlanCommandTest {
         assertTrue(r.out().contains("accuracy: predicted") && r.out().contains("all int8"), r.out());
         assertTrue(Files.isRegularFile(charts.resolve("sensitivity.png")));
         assertTrue(Files.isRegularFile(charts.resolve("pareto.png")));
+    }
+
+    @Test
+    void quantizeAppliesAWrittenPlanToTheCheckpoint(@TempDir Path dir) {
+        Path planFile = dir.resolve("plan.json");
+        Run r = run("plan", MLP, "--budget", "40KiB", "--data", VALIDATION, "--candidates", "int8", "int4", "int3",
+                "--out", planFile.toString());
+        assertEquals(0, r.code(), r.err());
+        Plan p = Plan.read(planFile);
+        Path out = dir.resolve("planned.safetensors");
+        Run q = run("quantize", MLP, "--plan", planFile.toString(), "--out", out.toString());
+        assertEquals(0, q.code(), q.err());
+        assertTrue(q.out().contains("3 of 6 tensors quantized with the plan plan.json (3 layers)"), q.out());
+        // Each planned weight in the export decodes to what the plan's own spec makes of the input tensor.
+        Map<String, Quantized> expected;
+        try (Checkpoint c = Checkpoint.open(Path.of(MLP))) {
+            expected = p.quantize(c.tensors());
+        }
+        try (QuantizedCheckpoint back = QuantizedCheckpoint.open(out)) {
+            for (Map.Entry<String, Quantized> e : expected.entrySet()) {
+                assertArrayEquals(e.getValue().dequantized().toFloatArray(),
+                        back.dequantized(e.getKey()).toFloatArray(), e.getKey());
+            }
+        }
+        Run both = run("quantize", MLP, "--plan", planFile.toString(), "--spec", "int8", "--out", out.toString());
+        assertEquals(2, both.code());
+        assertTrue(both.err().contains("exactly one of --spec SPEC and --plan PLAN.json"), both.err());
+        Run other = run("quantize", "../sample-tensors/thermal-cnn.f32.safetensors", "--plan", planFile.toString(),
+                "--out", dir.resolve("x.safetensors").toString());
+        assertEquals(1, other.code());
+        assertTrue(other.err().contains("plans layer 'fc1'") && other.err().contains("no tensor 'fc1.weight'"),
+                other.err());
     }
 
     @Test
