@@ -139,6 +139,7 @@ public class StopCheckInstrumenterTest {
         while (StopCheck.requested()) {
             StopCheck.withdraw();
         }
+        StopCheck.dropIdleMarks();
         Counter.reset(Long.MAX_VALUE);
     }
 
@@ -327,6 +328,50 @@ public class StopCheckInstrumenterTest {
         // With the request withdrawn the same code runs normally again.
         StopCheck.withdraw();
         assertEquals(Sample.sum(10), call(checked, "sum", 10));
+    }
+
+    @Test
+    void aMarkedThreadOwesOneStopAndOthersRunOn() throws Exception {
+        Class<?> checked = sample(new StopCheckInstrumenter());
+        long[] box = new long[1];
+        AtomicReference<Throwable> thrown = new AtomicReference<>();
+        Thread spinner = new Thread(() -> {
+            try {
+                call(checked, "spin", (Object) box);
+            } catch (Throwable e) {
+                thrown.set(e);
+            }
+        }, "spin");
+        spinner.setDaemon(true);
+        java.util.concurrent.CountDownLatch never = new java.util.concurrent.CountDownLatch(1);
+        Thread idle = new Thread(() -> {
+            try {
+                never.await();
+            } catch (InterruptedException e) {
+                Thread.currentThread().interrupt();
+            }
+        }, "idle");
+        idle.setDaemon(true);
+        spinner.start();
+        idle.start();
+        long deadline = System.nanoTime() + TimeUnit.SECONDS.toNanos(30);
+        while (((long) ELEMENT.getVolatile(box, 0) == 0 || idle.getState() != Thread.State.WAITING)
+                && System.nanoTime() < deadline) {
+            Thread.onSpinWait();
+        }
+        StopCheck.mark(idle);
+        StopCheck.mark(spinner);
+        assertEquals(2, StopCheck.marked());
+        // No request: the test thread is not marked and runs rewritten code normally.
+        assertFalse(StopCheck.requested());
+        assertEquals(Sample.sum(100), call(checked, "sum", 100));
+        spinner.join(10_000);
+        assertFalse(spinner.isAlive(), "the marked thread stopped at its next check");
+        assertInstanceOf(StopCheck.Stopped.class, thrown.get());
+        assertEquals(1, StopCheck.marked(), "the spinner paid its stop; the idle thread still owes one");
+        StopCheck.dropIdleMarks();
+        assertEquals(0, StopCheck.marked(), "a waiting thread's mark is dropped");
+        never.countDown();
     }
 
     @Test
