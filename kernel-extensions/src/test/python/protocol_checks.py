@@ -1,6 +1,6 @@
 """Protocol-level checks of the Rungbook kernel through jupyter_client: output flood, bad signatures,
-interrupts (library call, interruption-checking loop, tight loop, a Rungbook library loop), and that the kernel still answers after
-exceptions, a StackOverflowError, an OutOfMemoryError and interrupts.
+interrupts (library call, interruption-checking loop, tight loops, endless recursion, a Rungbook library loop), and
+that the kernel still answers after exceptions, a StackOverflowError, an OutOfMemoryError and interrupts.
 
 Run with JUPYTER_PATH pointing at the kernel spec under test. Prints one line per check; exits 1 on failure.
 """
@@ -196,7 +196,11 @@ def main():
             ("loop checking Progress.checkInterrupted",
              "long n = 0; while (true) { dev.rungbook.progress.Progress.checkInterrupted(\"busy loop\"); n++; }",
              "dev.rungbook.progress.OperationInterruptedException"),
-            ("tight loop", "long m = 0; while (m >= 0) { m = (m + 1) % 1000; }", None),
+            ("tight loop", "long m = 0; while (m >= 0) { m = (m + 1) % 1000; }", "Interrupted"),
+            # Ended by the stop checks compiled into cell code (no Thread.stop needed, so also on JDK 20 and 21).
+            ("empty endless loop", "while (true) {}", "Interrupted"),
+            ("endless recursion without loops",
+             "long spread(int n) { return n < 2 ? 1 : spread(n - 1) + spread(n - 2); }\nspread(200)", "Interrupted"),
         ]
         for label, code, ename in cases:
             start = time.time()

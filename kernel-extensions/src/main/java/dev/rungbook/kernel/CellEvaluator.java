@@ -41,6 +41,11 @@ public final class CellEvaluator implements AutoCloseable {
         }
     }
 
+    /** The {@code ename} of a cell that was stopped on request (the kernel's name for an interrupted cell). */
+    static final String STOPPED_NAME = "Interrupted";
+    /** The message of a cell that was stopped on request. */
+    static final String STOPPED_MESSAGE = "the cell was stopped";
+
     private final JShell shell;
     private final ValueCapturingExecutionControl control;
     private final SourceCodeAnalysis analysis;
@@ -112,6 +117,20 @@ public final class CellEvaluator implements AutoCloseable {
      * @param executionCount the cell's number, used in tracebacks
      */
     public CellResult eval(String code, int executionCount) {
+        clearStop();
+        return evalKeepingStop(code, executionCount);
+    }
+
+    /** Clears a stop request left by {@link #stop()}; {@link #eval} does this itself. */
+    void clearStop() {
+        control.clearStop();
+    }
+
+    /**
+     * {@link #eval} without clearing the stop request first: a runner that clears it when it hands the cell over
+     * keeps a stop that arrives before the cell thread gets to the cell.
+     */
+    CellResult evalKeepingStop(String code, int executionCount) {
         String rest = code;
         int offset = 0;
         CellResult.Success last = CellResult.Success.noValue();
@@ -140,6 +159,10 @@ public final class CellEvaluator implements AutoCloseable {
                 }
                 Snippet s = e.snippet();
                 places.put(s.id(), new Tracebacks.SnippetPlace(executionCount, lineOf(code, Math.max(sourceZero, 0))));
+                if (control.stopAsked() || isStopCheck(e.exception())) {
+                    // Also when the JDK's stop ended the snippet silently: the rest of the cell must not run.
+                    return stopped(e.exception());
+                }
                 if (e.status() == Snippet.Status.REJECTED) {
                     List<CellResult.Problem> problems = new ArrayList<>();
                     for (Diag d : (Iterable<Diag>) shell.diagnostics(s)::iterator) {
@@ -182,6 +205,20 @@ public final class CellEvaluator implements AutoCloseable {
         return control.capture(() -> shell.varValue(v));
     }
 
+    private static boolean isStopCheck(JShellException ex) {
+        return ex instanceof EvalException ee && StopCheck.Stopped.class.getName().equals(ee.getExceptionClassName());
+    }
+
+    /** An interrupted cell's failure, with the cell lines where a stop check ended it (when it was one). */
+    private CellResult.RuntimeFailure stopped(JShellException ex) {
+        List<String> lines = new ArrayList<>();
+        lines.add(STOPPED_NAME + ": " + STOPPED_MESSAGE);
+        if (isStopCheck(ex)) {
+            lines.addAll(tracebacks.frames(ex.getStackTrace()));
+        }
+        return new CellResult.RuntimeFailure(STOPPED_NAME, STOPPED_MESSAGE, lines, true);
+    }
+
     private CellResult.RuntimeFailure failure(JShellException ex) {
         if (ex instanceof UnresolvedReferenceException u) {
             String what = u.getSnippet().name();
@@ -200,9 +237,28 @@ public final class CellEvaluator implements AutoCloseable {
         return tracebacks;
     }
 
-    /** Stops the snippet that is running, from any thread (see {@link JShell#stop()}). */
+    /**
+     * Stops the snippet that is running, from any thread (see {@link JShell#stop()}): its stop checks throw at once
+     * (see {@link ValueCapturingExecutionControl} for what that covers); if it is still running after
+     * {@link ValueCapturingExecutionControl#SELF_STOP_MILLIS}, the JDK's own stop is tried. The cell then ends with
+     * the error {@value #STOPPED_NAME} and none of its later snippets run. Returns when the cell has left or the
+     * JDK's stop has been tried.
+     */
     public void stop() {
         shell.stop();
+    }
+
+    /**
+     * Whether {@link #stop()} may fall back on the JDK's stop. With {@code false} only the stop checks act, as on
+     * JDK 20 and 21, which have neither {@code Thread.stop} nor checks of their own; for tests.
+     */
+    void useJdkStop(boolean use) {
+        control.useJdkStop(use);
+    }
+
+    /** Whether cell classes get stop checks (known once the first cell class is loaded, e.g. after {@link #create}). */
+    boolean stopChecksOn() {
+        return control.stopChecksOn();
     }
 
     /** Completion candidates at {@code cursor}. */

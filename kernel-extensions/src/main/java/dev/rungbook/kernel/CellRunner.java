@@ -20,11 +20,12 @@ import java.util.logging.Logger;
  *
  * <p>Interrupting a cell: every thread of the cells' thread group except the runner's own is interrupted at once, so
  * blocking calls and library loops that check {@code Thread.interrupted()} / {@code Progress.checkInterrupted} end
- * promptly; if the cell is still running after {@link #STOP_GRACE_MILLIS}, JShell's own stop is used (JDK 17:
- * {@code Thread.stop}; newer JDKs such as 25: stop checks that JShell compiles into cell code). On a JDK that has
- * neither ({@code Thread.stop} is unsupported from JDK 20; which later release added the stop checks is not verified
- * here, 21 probably lacks them) a tight loop in cell code that ignores interrupts keeps running; the kernel logs this
- * and must be restarted.
+ * promptly; if the cell is still running after {@link #STOP_GRACE_MILLIS}, the session is stopped
+ * ({@link CellEvaluator#stop()}): the stop checks compiled into every cell class end loops and recursion of cell code
+ * on any JDK (see {@link ValueCapturingExecutionControl}), and the JDK's own stop is tried after that for a cell still
+ * inside a JDK or library call ({@code Thread.stop} on JDK 17; unsupported from JDK 20). A stopped cell ends with the
+ * error {@value CellEvaluator#STOPPED_NAME}. A delayed stop never reaches the next cell: it is dropped once its cell
+ * has ended.
  */
 final class CellRunner implements AutoCloseable {
     /** Time a cell has to react to an interrupt before JShell's stop is used. */
@@ -39,6 +40,8 @@ final class CellRunner implements AutoCloseable {
     private final Supplier<CellEvaluator> factory;
     private final java.util.concurrent.atomic.AtomicBoolean started = new java.util.concurrent.atomic.AtomicBoolean();
     private final AtomicLong cellSerial = new AtomicLong();
+    /** Orders a delayed stop against the end of its cell (see {@link #stop(long)}). */
+    private final Object stopLock = new Object();
     private volatile Thread runnerThread;
     private volatile long runningCell = -1;
     private volatile boolean interruptRequested;
@@ -93,11 +96,12 @@ final class CellRunner implements AutoCloseable {
         long serial = cellSerial.incrementAndGet();
         interruptRequested = false;
         stopUsed = false;
+        ev.clearStop();
         Future<CellResult> f = executor.submit(() -> {
             Thread.interrupted();
             OutputSink before = Notebook.bind(sink);
             try {
-                return ev.eval(code, executionCount);
+                return ev.evalKeepingStop(code, executionCount);
             } finally {
                 Notebook.bind(before);
                 Thread.interrupted();
@@ -108,7 +112,9 @@ final class CellRunner implements AutoCloseable {
             CellResult r = waitFor(f);
             return interruptRequested ? asInterrupted(r) : r;
         } finally {
-            runningCell = -1;
+            synchronized (stopLock) {
+                runningCell = -1;
+            }
         }
     }
 
@@ -138,13 +144,13 @@ final class CellRunner implements AutoCloseable {
         if (r instanceof CellResult.RuntimeFailure f) {
             boolean named = f.errorName().contains("Interrupt");
             String message = f.message().isEmpty() ? "the cell was interrupted" : f.message();
-            return new CellResult.RuntimeFailure(named ? f.errorName() : "Interrupted",
+            return new CellResult.RuntimeFailure(named ? f.errorName() : CellEvaluator.STOPPED_NAME,
                     named ? message : "the cell was interrupted (" + f.errorName() + (f.message().isEmpty() ? ""
                             : ": " + f.message()) + ")", f.traceback(), true);
         }
         if (stopUsed) {
-            return new CellResult.RuntimeFailure("Interrupted", "the cell was stopped",
-                    List.of("Interrupted: the cell was stopped"), true);
+            return new CellResult.RuntimeFailure(CellEvaluator.STOPPED_NAME, CellEvaluator.STOPPED_MESSAGE,
+                    List.of(CellEvaluator.STOPPED_NAME + ": " + CellEvaluator.STOPPED_MESSAGE), true);
         }
         return r;
     }
@@ -170,15 +176,18 @@ final class CellRunner implements AutoCloseable {
     }
 
     private void stop(long serial) {
-        if (runningCell != serial) {
-            return;
-        }
-        stopUsed = true;
-        try {
-            evaluator().stop();
-        } catch (RuntimeException | LinkageError e) {
-            LOG.log(Level.WARNING, "JShell could not stop the running cell (" + e + "); on this JDK a loop that "
-                    + "ignores interrupts keeps running until the kernel is restarted");
+        // Under the lock, so that a stop for a cell that is ending cannot set the request after the next cell began.
+        synchronized (stopLock) {
+            if (runningCell != serial) {
+                return;
+            }
+            stopUsed = true;
+            try {
+                evaluator().stop();
+            } catch (RuntimeException | LinkageError e) {
+                LOG.log(Level.WARNING, "JShell could not stop the running cell (" + e + "); a JDK or library call "
+                        + "that ignores interrupts keeps running until it returns or the kernel is restarted");
+            }
         }
     }
 
