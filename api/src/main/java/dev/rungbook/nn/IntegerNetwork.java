@@ -1,5 +1,6 @@
 package dev.rungbook.nn;
 
+import dev.rungbook.internal.ForwardKernels;
 import dev.rungbook.internal.TensorAccess;
 import dev.rungbook.quant.Quantizer;
 import dev.rungbook.range.RangeRule;
@@ -51,14 +52,25 @@ public final class IntegerNetwork {
         SINGLE_ROUNDING
     }
 
-    /** One linear layer in integer form; {@code wide} holds the weight codes as ints, [out, in]. */
+    /**
+     * One linear layer in integer form; {@code wide} holds the weight codes as ints, [out, in], and {@code panels}
+     * the same packed for the forward kernel (null without the Vector API, where the plain loop runs).
+     */
     private record IntLayer(String name, int in, int out, byte[] weights, int[] bias, float[] weightScales,
             FixedPoint[] multipliers, double outputScale, int outputZeroPoint, boolean relu, int weightBits,
-            int[] wide, int[] weightSums) {
+            int[] wide, int[] weightSums, ForwardKernels.IntPanels panels) {
         IntLayer(String name, int in, int out, byte[] weights, int[] bias, float[] weightScales,
                 FixedPoint[] multipliers, double outputScale, int outputZeroPoint, boolean relu, int weightBits) {
             this(name, in, out, weights, bias, weightScales, multipliers, outputScale, outputZeroPoint, relu,
                     weightBits, widen(weights), rowSums(weights, out, in));
+        }
+
+        IntLayer(String name, int in, int out, byte[] weights, int[] bias, float[] weightScales,
+                FixedPoint[] multipliers, double outputScale, int outputZeroPoint, boolean relu, int weightBits,
+                int[] wide, int[] weightSums) {
+            this(name, in, out, weights, bias, weightScales, multipliers, outputScale, outputZeroPoint, relu,
+                    weightBits, wide, weightSums,
+                    ForwardKernels.vectorised() ? ForwardKernels.IntPanels.of(wide, out, in) : null);
         }
     }
 
@@ -371,11 +383,40 @@ public final class IntegerNetwork {
      * Layer {@code i} on integer inputs {@code a} (zero point {@code zx}, {@code n} samples): int32 accumulation, then
      * requantization by the fixed-point multiplier in this network's mode ({@code fixedPoint}) or by the real
      * multiplier rounded half up. The input zero point is folded into the bias:
-     * {@code sum_j w_j (a_j - zx) = sum_j w_j a_j - zx sum_j w_j}, the same int32 value. The inner loop is an int32
-     * dot product (a reduction the JIT vectorises, integer addition being associative) over two samples at a time,
-     * so that each weight loaded serves both.
+     * {@code sum_j w_j (a_j - zx) = sum_j w_j a_j - zx sum_j w_j}, the same int32 value. The products run in
+     * {@link ForwardKernels.IntPanels} (packed weights, blocks of samples and output columns held in registers) when
+     * the Vector API is there, else in {@link #layerCodesPlain}; the codes are the same.
      */
     int[] layerCodes(int i, int[] a, int zx, int n, boolean fixedPoint) {
+        IntLayer l = layers.get(i);
+        if (l.panels == null) {
+            return layerCodesPlain(i, a, zx, n, fixedPoint);
+        }
+        int qmax = (1 << bits) - 1;
+        int lo = l.relu ? l.outputZeroPoint : 0;
+        int out = l.out;
+        int[] folded = new int[out];
+        for (int c = 0; c < out; c++) {
+            folded[c] = l.bias[c] - zx * l.weightSums[c];
+        }
+        int[] y = l.panels.accumulate(a, n, folded);
+        boolean single = requantization == Requantization.SINGLE_ROUNDING;
+        int zy = l.outputZeroPoint;
+        for (int s = 0; s < n; s++) {
+            int row = s * out;
+            for (int c = 0; c < out; c++) {
+                y[row + c] = requantize(y[row + c], l.multipliers[c], fixedPoint, single, zy, lo, qmax);
+            }
+        }
+        return y;
+    }
+
+    /**
+     * {@link #layerCodes} without the Vector API, as it was before the packed kernel: an int32 dot product per output
+     * (a reduction the JIT vectorises) over two samples at a time, so that each weight loaded serves both. Also the
+     * reference the packed kernel is tested against.
+     */
+    int[] layerCodesPlain(int i, int[] a, int zx, int n, boolean fixedPoint) {
         IntLayer l = layers.get(i);
         int qmax = (1 << bits) - 1;
         int lo = l.relu ? l.outputZeroPoint : 0;
