@@ -42,7 +42,7 @@ public final class ForwardKernels {
                 MethodHandles.Lookup l = MethodHandles.lookup();
                 fp = l.findStatic(c, "floatPanel", MethodType.methodType(void.class, float[].class, int.class,
                         int.class, float[].class, int.class, float[].class, int.class, int.class, float[].class,
-                        int.class));
+                        int.class, boolean.class));
                 ip = l.findStatic(c, "intPanel", MethodType.methodType(void.class, int[].class, int.class, int.class,
                         int[].class, int.class, int[].class, int.class, int.class, int[].class, int.class));
                 floatLanes = (int) l.findStatic(c, "floatLanes", MethodType.methodType(int.class)).invokeExact();
@@ -152,11 +152,22 @@ public final class ForwardKernels {
 
         /** {@code y[n x out] = x[n x in] W^T + b} as a new array; {@code x} is not modified. */
         public float[] affine(float[] x, int n) {
-            return affine(x, n, FLOAT_PANEL != null);
+            return affine(x, n, false, FLOAT_PANEL != null);
         }
 
-        /** {@link #affine(float[], int)} on the Vector API panels or, with {@code vector} false, the plain loops. */
-        float[] affine(float[] x, int n, boolean vector) {
+        /**
+         * {@code max(0, x W^T + b)} ({@link Math#max}, element by element) as a new array: the affine map followed by
+         * a ReLU, in one pass.
+         */
+        public float[] affineRelu(float[] x, int n) {
+            return affine(x, n, true, FLOAT_PANEL != null);
+        }
+
+        /**
+         * {@link #affine(float[], int)} (or with {@code relu} {@link #affineRelu}) on the Vector API panels or, with
+         * {@code vector} false, the plain loops.
+         */
+        float[] affine(float[] x, int n, boolean relu, boolean vector) {
             Checks.require(!vector || FLOAT_PANEL != null, "float panels: the Vector API is not available");
             checkInput(n, in, x.length, "float panels");
             float[] y = new float[n * out];
@@ -167,12 +178,12 @@ public final class ForwardKernels {
                 int width = panelWidth(j0, out, FLOAT_LANES);
                 if (vector) {
                     try {
-                        FLOAT_PANEL.invokeExact(x, n, in, w, j0 * in, b, j0, width, y, out);
+                        FLOAT_PANEL.invokeExact(x, n, in, w, j0 * in, b, j0, width, y, out, relu);
                     } catch (Throwable e) {
                         throw unchecked(e);
                     }
                 } else {
-                    plainFloatPanel(x, n, in, w, j0 * in, b, j0, width, y, out);
+                    plainFloatPanel(x, n, in, w, j0 * in, b, j0, width, y, out, relu);
                 }
             }
             return y;
@@ -256,7 +267,7 @@ public final class ForwardKernels {
 
     /** The float panel as plain loops: one row at a time, the panel's outputs in a scratch row. */
     private static void plainFloatPanel(float[] x, int n, int in, float[] pw, int po, float[] pb, int j0, int width,
-            float[] y, int out) {
+            float[] y, int out, boolean relu) {
         float[] acc = new float[width];
         int cols = Math.min(width, out - j0);
         for (int i = 0; i < n; i++) {
@@ -266,6 +277,11 @@ public final class ForwardKernels {
                 float a = x[xi + t];
                 for (int jj = 0; jj < width; jj++) {
                     acc[jj] = Math.fma(a, pw[p + jj], acc[jj]);
+                }
+            }
+            if (relu) {
+                for (int jj = 0; jj < width; jj++) {
+                    acc[jj] = Math.max(0f, acc[jj]);
                 }
             }
             System.arraycopy(acc, 0, y, i * out + j0, cols);

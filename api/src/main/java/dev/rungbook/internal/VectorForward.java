@@ -40,19 +40,22 @@ final class VectorForward {
     /**
      * Float panel {@code [j0, j0 + width)} ({@code width} one or two vectors) of {@code y[n x out] = x[n x in] W^T +
      * b}: {@code pw} from {@code po} holds {@code in} rows of {@code width} weights, {@code pb} from {@code j0} the
-     * bias padded to the panel. Blocks of four rows, then the rest one by one; each case is a small method of its own,
-     * so that the JIT compiles each hot loop on its own profile.
+     * bias padded to the panel; with {@code relu} each output is {@code max(0, y)}. Blocks of eight and four rows,
+     * then the rest one by one; each case is a small method of its own, so that the JIT compiles each hot loop on its
+     * own profile.
      */
     static void floatPanel(float[] x, int n, int in, float[] pw, int po, float[] pb, int j0, int width, float[] y,
-            int out) {
+            int out, boolean relu) {
         int cols = Math.min(width, out - j0);
         int n4 = n & ~3;
         if (width == 2 * F.length()) {
-            floatTwo4(x, 0, n4, in, pw, po, pb, j0, y, out, cols);
-            floatTwo1(x, n4, n, in, pw, po, pb, j0, y, out, cols);
+            int n8 = n & ~7;
+            floatTwo8(x, 0, n8, in, pw, po, pb, j0, y, out, cols, relu);
+            floatTwo4(x, n8, n4, in, pw, po, pb, j0, y, out, cols, relu);
+            floatTwo1(x, n4, n, in, pw, po, pb, j0, y, out, cols, relu);
         } else {
-            floatOne4(x, 0, n4, in, pw, po, pb, j0, y, out, cols);
-            floatOne1(x, n4, n, in, pw, po, pb, j0, y, out, cols);
+            floatOne4(x, 0, n4, in, pw, po, pb, j0, y, out, cols, relu);
+            floatOne1(x, n4, n, in, pw, po, pb, j0, y, out, cols, relu);
         }
     }
 
@@ -74,8 +77,9 @@ final class VectorForward {
 
     /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 4) of a two-vector float panel. */
     private static void floatTwo4(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y, int out,
-            int cols) {
+            int cols, boolean relu) {
         int l = F.length();
+        FloatVector zero = FloatVector.zero(F);
         float[] tmp = new float[8 * l];
         FloatVector b0 = FloatVector.fromArray(F, pb, j0);
         FloatVector b1 = FloatVector.fromArray(F, pb, j0 + l);
@@ -108,6 +112,16 @@ final class VectorForward {
                 c30 = w0.fma(a, c30);
                 c31 = w1.fma(a, c31);
             }
+            if (relu) { // Math.max(0, y): the vector max orders -0.0 below 0.0 and keeps NaN, as it does
+                c00 = c00.max(zero);
+                c01 = c01.max(zero);
+                c10 = c10.max(zero);
+                c11 = c11.max(zero);
+                c20 = c20.max(zero);
+                c21 = c21.max(zero);
+                c30 = c30.max(zero);
+                c31 = c31.max(zero);
+            }
             int y0 = i * out + j0;
             if (cols == 2 * l) {
                 c00.intoArray(y, y0);
@@ -134,10 +148,137 @@ final class VectorForward {
         }
     }
 
+    /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 8) of a two-vector float panel. */
+    private static void floatTwo8(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y,
+            int out, int cols, boolean relu) {
+        int l = F.length();
+        FloatVector zero = FloatVector.zero(F);
+        float[] tmp = new float[2 * l];
+        FloatVector b0 = FloatVector.fromArray(F, pb, j0);
+        FloatVector b1 = FloatVector.fromArray(F, pb, j0 + l);
+        for (int i = i0; i < i1; i += 8) {
+            int x0 = i * in;
+            int x1 = x0 + in;
+            int x2 = x1 + in;
+            int x3 = x2 + in;
+            int x4 = x3 + in;
+            int x5 = x4 + in;
+            int x6 = x5 + in;
+            int x7 = x6 + in;
+            FloatVector c00 = b0;
+            FloatVector c01 = b1;
+            FloatVector c10 = b0;
+            FloatVector c11 = b1;
+            FloatVector c20 = b0;
+            FloatVector c21 = b1;
+            FloatVector c30 = b0;
+            FloatVector c31 = b1;
+            FloatVector c40 = b0;
+            FloatVector c41 = b1;
+            FloatVector c50 = b0;
+            FloatVector c51 = b1;
+            FloatVector c60 = b0;
+            FloatVector c61 = b1;
+            FloatVector c70 = b0;
+            FloatVector c71 = b1;
+            for (int t = 0, p = po; t < in; t++, p += 2 * l) {
+                FloatVector w0 = FloatVector.fromArray(F, pw, p);
+                FloatVector w1 = FloatVector.fromArray(F, pw, p + l);
+                FloatVector a = FloatVector.broadcast(F, x[x0 + t]);
+                c00 = w0.fma(a, c00);
+                c01 = w1.fma(a, c01);
+                a = FloatVector.broadcast(F, x[x1 + t]);
+                c10 = w0.fma(a, c10);
+                c11 = w1.fma(a, c11);
+                a = FloatVector.broadcast(F, x[x2 + t]);
+                c20 = w0.fma(a, c20);
+                c21 = w1.fma(a, c21);
+                a = FloatVector.broadcast(F, x[x3 + t]);
+                c30 = w0.fma(a, c30);
+                c31 = w1.fma(a, c31);
+                a = FloatVector.broadcast(F, x[x4 + t]);
+                c40 = w0.fma(a, c40);
+                c41 = w1.fma(a, c41);
+                a = FloatVector.broadcast(F, x[x5 + t]);
+                c50 = w0.fma(a, c50);
+                c51 = w1.fma(a, c51);
+                a = FloatVector.broadcast(F, x[x6 + t]);
+                c60 = w0.fma(a, c60);
+                c61 = w1.fma(a, c61);
+                a = FloatVector.broadcast(F, x[x7 + t]);
+                c70 = w0.fma(a, c70);
+                c71 = w1.fma(a, c71);
+            }
+            if (relu) { // Math.max(0, y): the vector max orders -0.0 below 0.0 and keeps NaN, as it does
+                c00 = c00.max(zero);
+                c01 = c01.max(zero);
+                c10 = c10.max(zero);
+                c11 = c11.max(zero);
+                c20 = c20.max(zero);
+                c21 = c21.max(zero);
+                c30 = c30.max(zero);
+                c31 = c31.max(zero);
+                c40 = c40.max(zero);
+                c41 = c41.max(zero);
+                c50 = c50.max(zero);
+                c51 = c51.max(zero);
+                c60 = c60.max(zero);
+                c61 = c61.max(zero);
+                c70 = c70.max(zero);
+                c71 = c71.max(zero);
+            }
+            int y0 = i * out + j0;
+            if (cols == 2 * l) {
+                c00.intoArray(y, y0);
+                c01.intoArray(y, y0 + l);
+                c10.intoArray(y, y0 + out);
+                c11.intoArray(y, y0 + out + l);
+                c20.intoArray(y, y0 + 2 * out);
+                c21.intoArray(y, y0 + 2 * out + l);
+                c30.intoArray(y, y0 + 3 * out);
+                c31.intoArray(y, y0 + 3 * out + l);
+                c40.intoArray(y, y0 + 4 * out);
+                c41.intoArray(y, y0 + 4 * out + l);
+                c50.intoArray(y, y0 + 5 * out);
+                c51.intoArray(y, y0 + 5 * out + l);
+                c60.intoArray(y, y0 + 6 * out);
+                c61.intoArray(y, y0 + 6 * out + l);
+                c70.intoArray(y, y0 + 7 * out);
+                c71.intoArray(y, y0 + 7 * out + l);
+            } else { // a partial panel: through a scratch row (no helper method: vectors must not leave this one)
+                c00.intoArray(tmp, 0);
+                c01.intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0, cols);
+                c10.intoArray(tmp, 0);
+                c11.intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0 + out, cols);
+                c20.intoArray(tmp, 0);
+                c21.intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0 + 2 * out, cols);
+                c30.intoArray(tmp, 0);
+                c31.intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0 + 3 * out, cols);
+                c40.intoArray(tmp, 0);
+                c41.intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0 + 4 * out, cols);
+                c50.intoArray(tmp, 0);
+                c51.intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0 + 5 * out, cols);
+                c60.intoArray(tmp, 0);
+                c61.intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0 + 6 * out, cols);
+                c70.intoArray(tmp, 0);
+                c71.intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0 + 7 * out, cols);
+            }
+        }
+    }
+
     /** Rows {@code [i0, i1)} of a two-vector float panel, one at a time. */
     private static void floatTwo1(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y, int out,
-            int cols) {
+            int cols, boolean relu) {
         int l = F.length();
+        FloatVector zero = FloatVector.zero(F);
         float[] tmp = new float[8 * l];
         FloatVector b0 = FloatVector.fromArray(F, pb, j0);
         FloatVector b1 = FloatVector.fromArray(F, pb, j0 + l);
@@ -150,6 +291,10 @@ final class VectorForward {
                 c0 = FloatVector.fromArray(F, pw, p).fma(a, c0);
                 c1 = FloatVector.fromArray(F, pw, p + l).fma(a, c1);
             }
+            if (relu) { // Math.max(0, y): the vector max orders -0.0 below 0.0 and keeps NaN, as it does
+                c0 = c0.max(zero);
+                c1 = c1.max(zero);
+            }
             c0.intoArray(tmp, 0);
             c1.intoArray(tmp, l);
             System.arraycopy(tmp, 0, y, i * out + j0, cols);
@@ -158,8 +303,9 @@ final class VectorForward {
 
     /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 4) of a one-vector float panel. */
     private static void floatOne4(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y, int out,
-            int cols) {
+            int cols, boolean relu) {
         int l = F.length();
+        FloatVector zero = FloatVector.zero(F);
         float[] tmp = new float[8 * l];
         FloatVector b0 = FloatVector.fromArray(F, pb, j0);
         for (int i = i0; i < i1; i += 4) {
@@ -178,6 +324,12 @@ final class VectorForward {
                 c2 = w0.fma(FloatVector.broadcast(F, x[x2 + t]), c2);
                 c3 = w0.fma(FloatVector.broadcast(F, x[x3 + t]), c3);
             }
+            if (relu) { // Math.max(0, y): the vector max orders -0.0 below 0.0 and keeps NaN, as it does
+                c0 = c0.max(zero);
+                c1 = c1.max(zero);
+                c2 = c2.max(zero);
+                c3 = c3.max(zero);
+            }
             c0.intoArray(tmp, 0);
             c1.intoArray(tmp, l);
             c2.intoArray(tmp, 2 * l);
@@ -191,8 +343,9 @@ final class VectorForward {
 
     /** Rows {@code [i0, i1)} of a one-vector float panel, one at a time. */
     private static void floatOne1(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y, int out,
-            int cols) {
+            int cols, boolean relu) {
         int l = F.length();
+        FloatVector zero = FloatVector.zero(F);
         float[] tmp = new float[8 * l];
         FloatVector b0 = FloatVector.fromArray(F, pb, j0);
         for (int i = i0; i < i1; i++) {
@@ -200,6 +353,9 @@ final class VectorForward {
             FloatVector c0 = b0;
             for (int t = 0, p = po; t < in; t++, p += l) {
                 c0 = FloatVector.fromArray(F, pw, p).fma(FloatVector.broadcast(F, x[x0 + t]), c0);
+            }
+            if (relu) { // Math.max(0, y): the vector max orders -0.0 below 0.0 and keeps NaN, as it does
+                c0 = c0.max(zero);
             }
             c0.intoArray(tmp, 0);
             System.arraycopy(tmp, 0, y, i * out + j0, cols);

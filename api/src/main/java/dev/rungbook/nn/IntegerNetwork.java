@@ -402,13 +402,47 @@ public final class IntegerNetwork {
         int[] y = l.panels.accumulate(a, n, folded);
         boolean single = requantization == Requantization.SINGLE_ROUNDING;
         int zy = l.outputZeroPoint;
+        int[] m0 = new int[out];
+        int[] sh = new int[out];
+        boolean plainShifts = fixedPoint && !single;
+        for (int c = 0; c < out; c++) {
+            m0[c] = l.multipliers[c].multiplier();
+            sh[c] = l.multipliers[c].shift();
+            plainShifts &= sh[c] >= 0 && sh[c] <= 31;
+        }
         for (int s = 0; s < n; s++) {
             int row = s * out;
+            if (plainShifts) {
+                requantizeRow(y, row, out, m0, sh, zy, lo, qmax);
+                continue;
+            }
             for (int c = 0; c < out; c++) {
                 y[row + c] = requantize(y[row + c], l.multipliers[c], fixedPoint, single, zy, lo, qmax);
             }
         }
         return y;
+    }
+
+    /**
+     * {@code y[row + c] = clamp(zy + FixedPoint.apply(y[row + c]), lo, qmax)} for {@code c < out}, every shift in
+     * [0, 31]: the published double rounding ({@link FixedPoint#saturatingRoundingDoublingHighMul} then
+     * {@link FixedPoint#roundingDivideByPowerOfTwo}) written without branches, so that the loop runs at a few
+     * cycles per output. Same integers: the doubling high multiply cannot saturate ({@code M0 >= 2^30}), its nudge is
+     * {@code 2^30} or {@code 1 - 2^30} by the sign of the product, the division by {@code 2^31} truncates toward
+     * zero (add {@code 2^31 - 1} to negative values before the arithmetic shift), and at shift 0 the rounding shift's
+     * mask and remainder are 0, which leaves the value as it is. Tested against {@link FixedPoint#apply}.
+     */
+    static void requantizeRow(int[] y, int row, int out, int[] m0, int[] shift, int zy, int lo, int qmax) {
+        for (int c = 0; c < out; c++) {
+            long ab = (long) y[row + c] * m0[c];
+            long t = ab + (1L << 30) - (ab >>> 63) * ((1L << 31) - 1);
+            int x = (int) ((t + ((t >> 63) & ((1L << 31) - 1))) >> 31);
+            int e = shift[c];
+            int mask = (int) ((1L << e) - 1);
+            int threshold = (mask >> 1) + (x >>> 31);
+            int r = (x >> e) + ((x & mask) > threshold ? 1 : 0);
+            y[row + c] = (int) Math.max(lo, Math.min(qmax, (long) zy + r));
+        }
     }
 
     /**

@@ -112,6 +112,24 @@ public final class Linear implements WeightedLayer {
     }
 
     /**
+     * {@code forward} followed by a ReLU ({@link Relu#forward}, {@code Math.max(0, y)}) in one pass: the same values,
+     * without the intermediate array.
+     */
+    Tensor forwardRelu(Tensor batch) {
+        if (!ForwardKernels.vectorised()) {
+            float[] y = TensorAccess.data(forward(batch));
+            for (int i = 0; i < y.length; i++) {
+                y[i] = Math.max(0f, y[i]);
+            }
+            return TensorAccess.wrap(y, new int[] {batch.dim(0), outFeatures()}, DType.F32, null);
+        }
+        checkInput(batch.shape());
+        int n = batch.dim(0);
+        float[] y = panels().affineRelu(TensorAccess.data(batch), n);
+        return TensorAccess.wrap(y, new int[] {n, outFeatures()}, DType.F32, null);
+    }
+
+    /**
      * The packed weight. Each output is summed from its bias over the inputs in increasing order with one fused
      * multiply-add per step, as {@link Dense#affine} does, so the two give the same bits.
      */

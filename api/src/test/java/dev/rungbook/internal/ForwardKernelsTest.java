@@ -56,9 +56,15 @@ class ForwardKernelsTest {
                     ForwardKernels.FloatPanels p = ForwardKernels.FloatPanels.of(w, b, out, in);
                     String shape = n + " x " + in + " -> " + out;
                     // assertArrayEquals on floats compares Float.floatToIntBits: -0.0 and 0.0 differ
-                    assertArrayEquals(want, p.affine(x, n, true), "vector panels, " + shape);
-                    assertArrayEquals(want, p.affine(x, n, false), "plain panels, " + shape);
+                    assertArrayEquals(want, p.affine(x, n, false, true), "vector panels, " + shape);
+                    assertArrayEquals(want, p.affine(x, n, false, false), "plain panels, " + shape);
                     assertArrayEquals(want, p.affine(x, n), "default path, " + shape);
+                    float[] relu = want.clone();
+                    for (int i = 0; i < relu.length; i++) {
+                        relu[i] = Math.max(0f, relu[i]);
+                    }
+                    assertArrayEquals(relu, p.affine(x, n, true, true), "vector panels with ReLU, " + shape);
+                    assertArrayEquals(relu, p.affine(x, n, true, false), "plain panels with ReLU, " + shape);
                 }
             }
         }
@@ -147,6 +153,15 @@ class ForwardKernelsTest {
         assertArrayEquals(want, ForwardKernels.FloatPanels.of(w, b, 2, 3).affine(x, 2));
         assertTrue(Float.isNaN(want[0]) && Float.isNaN(want[1]), "NaN input of sample 0 reaches both outputs");
         assertEquals(Float.POSITIVE_INFINITY, want[2], "infinite input of sample 1, weight 1");
+        // ReLU: Math.max(0, NaN) is NaN and Math.max(0, -0.0) is 0.0; the fused kernels must agree bit for bit
+        float[] z = {0f, 0f, 0f, 0f}; // fma(0, -1, -0.0) = -0.0 + -0.0 = -0.0
+        float[] zb = {-0.0f, -0.0f};
+        ForwardKernels.FloatPanels pz = ForwardKernels.FloatPanels.of(new float[] {-1f, -1f, 1f, 1f}, zb, 2, 2);
+        float[] pre = ForwardKernels.referenceAffine(z, 2, new float[] {-1f, -1f, 1f, 1f}, zb, 2, 2);
+        assertEquals(Float.floatToIntBits(-0.0f), Float.floatToIntBits(pre[0]), "a -0.0 output before the ReLU");
+        assertArrayEquals(new float[] {0f, 0f, 0f, 0f}, pz.affineRelu(z, 2));
+        float[] nanRelu = ForwardKernels.FloatPanels.of(w, b, 2, 3).affineRelu(x, 2);
+        assertTrue(Float.isNaN(nanRelu[0]) && Float.isNaN(nanRelu[1]), "NaN passes the ReLU");
     }
 
     @Test
