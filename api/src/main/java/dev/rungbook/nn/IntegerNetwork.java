@@ -429,19 +429,22 @@ public final class IntegerNetwork {
      * {@link FixedPoint#roundingDivideByPowerOfTwo}) written without branches, so that the loop runs at a few
      * cycles per output. Same integers: the doubling high multiply cannot saturate ({@code M0 >= 2^30}), its nudge is
      * {@code 2^30} or {@code 1 - 2^30} by the sign of the product, the division by {@code 2^31} truncates toward
-     * zero (add {@code 2^31 - 1} to negative values before the arithmetic shift), and at shift 0 the rounding shift's
-     * mask and remainder are 0, which leaves the value as it is. Tested against {@link FixedPoint#apply}.
+     * zero (add {@code 2^31 - 1} to negative values before the arithmetic shift), at shift 0 the rounding shift's
+     * mask and remainder are 0, which leaves the value as it is, {@code remainder > threshold} is the sign bit of
+     * {@code threshold - remainder} (both in [0, 2^31)), and clamping {@code r} to {@code qmax - zy} before adding
+     * {@code zy} cannot overflow. Tested against {@link FixedPoint#apply}.
      */
     static void requantizeRow(int[] y, int row, int out, int[] m0, int[] shift, int zy, int lo, int qmax) {
+        int top = qmax - zy;
         for (int c = 0; c < out; c++) {
             long ab = (long) y[row + c] * m0[c];
-            long t = ab + (1L << 30) - (ab >>> 63) * ((1L << 31) - 1);
+            long t = ab + ((1L << 30) - ((ab >> 63) & ((1L << 31) - 1)));
             int x = (int) ((t + ((t >> 63) & ((1L << 31) - 1))) >> 31);
             int e = shift[c];
-            int mask = (int) ((1L << e) - 1);
+            int mask = (1 << e) - 1;
             int threshold = (mask >> 1) + (x >>> 31);
-            int r = (x >> e) + ((x & mask) > threshold ? 1 : 0);
-            y[row + c] = (int) Math.max(lo, Math.min(qmax, (long) zy + r));
+            int r = (x >> e) + ((threshold - (x & mask)) >>> 31);
+            y[row + c] = Math.max(lo, Math.min(r, top) + zy);
         }
     }
 
