@@ -344,8 +344,12 @@ public final class IntegerNetwork {
         float[] v = TensorAccess.data(x);
         int qmax = (1 << bits) - 1;
         int[] q = new int[v.length];
+        double s = inputScale;
+        int zp = inputZeroPoint;
         for (int i = 0; i < v.length; i++) {
-            q[i] = (int) Math.max(0, Math.min(qmax, Math.rint(v[i] / inputScale) + inputZeroPoint));
+            // clamp(rint(v / s) + zp, 0, qmax) by comparisons: NaN fails both and gives 0, as (int) NaN does
+            double c = Math.rint(v[i] / s) + zp;
+            q[i] = c >= qmax ? qmax : c > 0 ? (int) c : 0;
         }
         return q;
     }
