@@ -27,12 +27,14 @@ import java.lang.invoke.MethodType;
 public final class ForwardKernels {
     private static final MethodHandle FLOAT_PANEL;
     private static final MethodHandle INT_PANEL;
+    private static final MethodHandle CONV_POSITIONS;
     private static final int FLOAT_LANES;
     private static final int INT_LANES;
 
     static {
         MethodHandle fp = null;
         MethodHandle ip = null;
+        MethodHandle cp = null;
         int floatLanes = 8;
         int intLanes = 8;
         if (ModuleLayer.boot().findModule("jdk.incubator.vector").isPresent()
@@ -45,17 +47,21 @@ public final class ForwardKernels {
                         int.class, boolean.class));
                 ip = l.findStatic(c, "intPanel", MethodType.methodType(void.class, int[].class, int.class, int.class,
                         int[].class, int.class, int[].class, int.class, int.class, int[].class, int.class));
+                cp = l.findStatic(c, "convPositions", MethodType.methodType(void.class, float[].class, int.class,
+                        int.class, float[].class, int.class, float[].class, float[].class, int.class));
                 floatLanes = (int) l.findStatic(c, "floatLanes", MethodType.methodType(int.class)).invokeExact();
                 intLanes = (int) l.findStatic(c, "intLanes", MethodType.methodType(int.class)).invokeExact();
             } catch (Throwable e) { // no usable Vector API: the plain loops
                 fp = null;
                 ip = null;
+                cp = null;
                 floatLanes = 8;
                 intLanes = 8;
             }
         }
         FLOAT_PANEL = fp;
         INT_PANEL = ip;
+        CONV_POSITIONS = cp;
         FLOAT_LANES = floatLanes;
         INT_LANES = intLanes;
     }
@@ -262,6 +268,26 @@ public final class ForwardKernels {
                 }
             }
             return y;
+        }
+    }
+
+    /**
+     * One sample of a convolution: {@code y[yo + o p + q] = ((s0 + s1) + (s2 + s3)) + b[o]}, where {@code s_r} sums
+     * {@code w[o, t] * col[t, q]} (each product rounded, then added) over the taps {@code t = r, r + 4, ...} below
+     * {@code k - k mod 4}, and the last {@code k mod 4} taps go to {@code s0}: the order of a dot product with four
+     * partial sums, so any implementation gives the same bits. {@code w} is {@code [out, k]}, {@code col}
+     * {@code [k, p]} (the receptive fields, tap-major: positions contiguous), {@code b} {@code [out]}. Runs on the
+     * Vector API (vectors over positions); call only when {@link #vectorised()}.
+     */
+    public static void convPositions(float[] w, int out, int k, float[] col, int p, float[] b, float[] y, int yo) {
+        Checks.require(CONV_POSITIONS != null, "convPositions: the Vector API is not available");
+        Checks.require((long) out * k <= w.length && (long) k * p <= col.length && b.length >= out
+                && yo >= 0 && yo + (long) out * p <= y.length, "convPositions: arrays too short for [%d, %d] x [%d, %d]",
+                out, k, k, p);
+        try {
+            CONV_POSITIONS.invokeExact(w, out, k, col, p, b, y, yo);
+        } catch (Throwable e) {
+            throw unchecked(e);
         }
     }
 

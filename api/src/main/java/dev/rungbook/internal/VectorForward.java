@@ -495,4 +495,110 @@ final class VectorForward {
             System.arraycopy(tmp, 0, y, i * out + j0, cols);
         }
     }
+
+    /**
+     * {@code y[yo + o p + q] = ((s0 + s1) + (s2 + s3)) + b[o]} for every output channel {@code o < out} and position
+     * {@code q < p}, where {@code s_r} sums {@code w[o, t] * col[t, q]} (each product rounded, then added) over the
+     * taps {@code t = r, r + 4, ...} below {@code k - k mod 4} in increasing order, and the last {@code k mod 4} taps
+     * go to {@code s0}: the order of the dot-product kernel the convolution used before, so the same bits. {@code w}
+     * is {@code [out, k]}, {@code col} {@code [k, p]} (positions contiguous). Vectors run over positions, two output
+     * channels at a time; positions past the last whole vector take the scalar loop.
+     */
+    static void convPositions(float[] w, int out, int k, float[] col, int p, float[] b, float[] y, int yo) {
+        int l = F.length();
+        int pv = p - p % l;
+        int o = 0;
+        for (; o + 2 <= out; o += 2) {
+            convTwo(w, o, k, col, p, pv, b, y, yo);
+        }
+        for (; o < out; o++) {
+            convOne(w, o, k, col, p, pv, b, y, yo);
+        }
+        for (o = 0; o < out; o++) {
+            int wo = o * k;
+            for (int q = pv; q < p; q++) {
+                float s0 = 0;
+                float s1 = 0;
+                float s2 = 0;
+                float s3 = 0;
+                int t = 0;
+                for (; t + 3 < k; t += 4) {
+                    s0 += w[wo + t] * col[t * p + q];
+                    s1 += w[wo + t + 1] * col[(t + 1) * p + q];
+                    s2 += w[wo + t + 2] * col[(t + 2) * p + q];
+                    s3 += w[wo + t + 3] * col[(t + 3) * p + q];
+                }
+                for (; t < k; t++) {
+                    s0 += w[wo + t] * col[t * p + q];
+                }
+                float c = (s0 + s1) + (s2 + s3);
+                y[yo + o * p + q] = c + b[o];
+            }
+        }
+    }
+
+    /** Output channels {@code o} and {@code o + 1} of {@link #convPositions}, positions below {@code pv}. */
+    private static void convTwo(float[] w, int o, int k, float[] col, int p, int pv, float[] b, float[] y, int yo) {
+        int l = F.length();
+        int wa = o * k;
+        int wb = wa + k;
+        FloatVector ba = FloatVector.broadcast(F, b[o]);
+        FloatVector bb = FloatVector.broadcast(F, b[o + 1]);
+        for (int q = 0; q < pv; q += l) {
+            FloatVector a0 = FloatVector.zero(F);
+            FloatVector a1 = a0;
+            FloatVector a2 = a0;
+            FloatVector a3 = a0;
+            FloatVector c0 = a0;
+            FloatVector c1 = a0;
+            FloatVector c2 = a0;
+            FloatVector c3 = a0;
+            int t = 0;
+            for (; t + 3 < k; t += 4) {
+                FloatVector x0 = FloatVector.fromArray(F, col, t * p + q);
+                FloatVector x1 = FloatVector.fromArray(F, col, (t + 1) * p + q);
+                FloatVector x2 = FloatVector.fromArray(F, col, (t + 2) * p + q);
+                FloatVector x3 = FloatVector.fromArray(F, col, (t + 3) * p + q);
+                a0 = a0.add(x0.mul(w[wa + t]));
+                a1 = a1.add(x1.mul(w[wa + t + 1]));
+                a2 = a2.add(x2.mul(w[wa + t + 2]));
+                a3 = a3.add(x3.mul(w[wa + t + 3]));
+                c0 = c0.add(x0.mul(w[wb + t]));
+                c1 = c1.add(x1.mul(w[wb + t + 1]));
+                c2 = c2.add(x2.mul(w[wb + t + 2]));
+                c3 = c3.add(x3.mul(w[wb + t + 3]));
+            }
+            for (; t < k; t++) {
+                FloatVector x0 = FloatVector.fromArray(F, col, t * p + q);
+                a0 = a0.add(x0.mul(w[wa + t]));
+                c0 = c0.add(x0.mul(w[wb + t]));
+            }
+            a0.add(a1).add(a2.add(a3)).add(ba).intoArray(y, yo + o * p + q);
+            c0.add(c1).add(c2.add(c3)).add(bb).intoArray(y, yo + (o + 1) * p + q);
+        }
+    }
+
+    /** Output channel {@code o} of {@link #convPositions}, positions below {@code pv}. */
+    private static void convOne(float[] w, int o, int k, float[] col, int p, int pv, float[] b, float[] y, int yo) {
+        int l = F.length();
+        int wa = o * k;
+        FloatVector ba = FloatVector.broadcast(F, b[o]);
+        for (int q = 0; q < pv; q += l) {
+            FloatVector a0 = FloatVector.zero(F);
+            FloatVector a1 = a0;
+            FloatVector a2 = a0;
+            FloatVector a3 = a0;
+            int t = 0;
+            for (; t + 3 < k; t += 4) {
+                a0 = a0.add(FloatVector.fromArray(F, col, t * p + q).mul(w[wa + t]));
+                a1 = a1.add(FloatVector.fromArray(F, col, (t + 1) * p + q).mul(w[wa + t + 1]));
+                a2 = a2.add(FloatVector.fromArray(F, col, (t + 2) * p + q).mul(w[wa + t + 2]));
+                a3 = a3.add(FloatVector.fromArray(F, col, (t + 3) * p + q).mul(w[wa + t + 3]));
+            }
+            for (; t < k; t++) {
+                a0 = a0.add(FloatVector.fromArray(F, col, t * p + q).mul(w[wa + t]));
+            }
+            a0.add(a1).add(a2.add(a3)).add(ba).intoArray(y, yo + o * p + q);
+        }
+    }
 }

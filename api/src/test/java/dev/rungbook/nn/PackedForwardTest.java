@@ -156,4 +156,79 @@ class PackedForwardTest {
             assertEquals(want, q[i], "value " + v[i]);
         }
     }
+
+    @Test
+    void convolutionHasTheBitsOfTheDotProductKernel() {
+        // Source: the previous forward pass, rebuilt here: receptive fields as rows (im2colRows), each sample's
+        // [out, P] block by Dense.matmulTransposedB (four partial sums), then the bias added.
+        SplittableRandom r = new SplittableRandom(43);
+        int[][] cases = { // in, out, kernel, stride, padding, h, w, n
+            {1, 8, 3, 1, 1, 16, 16, 3}, {8, 16, 3, 1, 1, 8, 8, 2}, {3, 5, 3, 2, 1, 9, 7, 3}, {2, 3, 1, 1, 0, 5, 3, 1},
+            {3, 17, 2, 3, 2, 11, 13, 2}, {4, 1, 3, 1, 0, 3, 3, 5}, {5, 33, 3, 1, 2, 1, 17, 1}};
+        for (int[] c : cases) {
+            int in = c[0];
+            int out = c[1];
+            int kk = c[2];
+            Conv2d conv = new Conv2d("conv", Tensor.of(Fixtures.gaussian(r.nextLong(), out * in * kk * kk), out, in, kk,
+                    kk), Tensor.of(Fixtures.gaussian(r.nextLong(), out), out), c[3], c[4]);
+            int n = c[7];
+            Tensor x = Tensor.of(Fixtures.gaussian(r.nextLong(), n * in * c[5] * c[6]), n, in, c[5], c[6]);
+            int[] os = conv.outputShape(x.shape());
+            int p = os[2] * os[3];
+            int k = in * kk * kk;
+            float[] rows = TensorAccess.data(conv.im2colRows(x));
+            float[] w = TensorAccess.data(conv.weight());
+            float[] b = TensorAccess.data(conv.bias());
+            float[] want = new float[n * out * p];
+            float[] ys = new float[out * p];
+            float[] col = new float[p * k];
+            for (int s = 0; s < n; s++) {
+                System.arraycopy(rows, s * p * k, col, 0, p * k);
+                Dense.matmulTransposedB(w, col, ys, out, k, p);
+                for (int o = 0; o < out; o++) {
+                    for (int q = 0; q < p; q++) {
+                        want[s * out * p + o * p + q] = ys[o * p + q] + b[o];
+                    }
+                }
+            }
+            assertArrayEquals(want, TensorAccess.data(conv.forward(x)), java.util.Arrays.toString(c));
+        }
+    }
+
+    @Test
+    void thermalConvNetForwardHasTheBitsOfTheLayerByLayerReference() {
+        // Source: the sample conv net with each convolution computed as in the test above.
+        Network cnn = ConvEqualizationTest.thermal().foldBatchNorm();
+        Dataset data = Dataset.load(ConvEqualizationTest.SAMPLES.resolve("thermal-validation.npz"));
+        float[] v = new float[37 * 256];
+        System.arraycopy(data.inputs().toFloatArray(), 0, v, 0, v.length);
+        Tensor x = Tensor.of(v, 37, 1, 16, 16);
+        Tensor h = x;
+        for (Layer l : cnn.layers()) {
+            if (l instanceof Conv2d) {
+                Conv2d conv = (Conv2d) l;
+                int[] os = conv.outputShape(h.shape());
+                int p = os[2] * os[3];
+                int k = conv.inChannels() * conv.kernelHeight() * conv.kernelWidth();
+                int out = conv.outChannels();
+                float[] rows = TensorAccess.data(conv.im2colRows(h));
+                float[] y = new float[os[0] * out * p];
+                float[] ys = new float[out * p];
+                float[] col = new float[p * k];
+                for (int s = 0; s < os[0]; s++) {
+                    System.arraycopy(rows, s * p * k, col, 0, p * k);
+                    Dense.matmulTransposedB(TensorAccess.data(conv.weight()), col, ys, out, k, p);
+                    for (int o = 0; o < out; o++) {
+                        for (int q = 0; q < p; q++) {
+                            y[s * out * p + o * p + q] = ys[o * p + q] + conv.bias().getFlat(o);
+                        }
+                    }
+                }
+                h = Tensor.of(y, os);
+            } else {
+                h = l.forward(h);
+            }
+        }
+        assertArrayEquals(TensorAccess.data(h), TensorAccess.data(cnn.forward(x)));
+    }
 }
