@@ -18,9 +18,13 @@ import jdk.incubator.vector.VectorSpecies;
 final class VectorForward {
     /**
      * 256-bit float vectors even where 512-bit ones exist. Measured on Java 17 (AVX-512 machine): with 512-bit
-     * vectors the sample classifier's float pass took 0.77 ms in a fresh JVM but 21 ms once the quantizers had run
-     * (their error sums use 256-bit vectors, and the JIT then no longer compiled this kernel's vector operations to
-     * vector instructions); with 256-bit vectors it takes 0.9 to 1.2 ms either way.
+     * vectors the sample classifier's float pass took 0.55 to 0.77 ms in a fresh JVM but 21 ms once the quantizers
+     * had run; with 256-bit vectors it takes 0.8 to 1.2 ms either way. The cause, from the JIT's inlining log: the
+     * quantizers' error sums store 256-bit float vectors through {@code FloatVector.intoArray} (and add and multiply
+     * them), so the receiver-type profile of those shared library methods holds two vector classes; the JIT then
+     * inlines both, the vector class is no longer a constant, and the store is not compiled to a vector instruction
+     * (every vector is boxed). With one float shape in the library the profiles stay monomorphic. The int kernel is
+     * the only user of int vectors and keeps the preferred (512-bit) shape.
      */
     private static final VectorSpecies<Float> F = FloatVector.SPECIES_256;
     private static final VectorSpecies<Integer> I = IntVector.SPECIES_PREFERRED;
