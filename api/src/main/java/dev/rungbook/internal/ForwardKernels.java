@@ -10,8 +10,7 @@ import java.lang.invoke.MethodType;
  * packed once into panels of output columns. Internal.
  *
  * <p>Packing: the output columns are cut into panels two vectors wide ({@code 2 L} columns, {@code L} the lanes of
- * the kernel's vectors: 8 for floats, whose kernel uses 256-bit vectors, and the preferred int vector's for ints, 16
- * with AVX-512; 8 on the plain path), the last one a single vector when at most {@code L} columns
+ * the JVM's preferred vectors, 16 with AVX-512; 8 on the plain path), the last one a single vector when at most {@code L} columns
  * remain; panel {@code [j0, j0 + width)} stores, for each input index {@code t}, the {@code width} weights
  * {@code W[j0 + jj, t]} next to each other (zeros past {@code out}), from offset {@code j0 * in}. A kernel then reads
  * each panel row as one or two vectors.
@@ -43,8 +42,8 @@ public final class ForwardKernels {
                 Class<?> c = Class.forName("dev.rungbook.internal.VectorForward");
                 MethodHandles.Lookup l = MethodHandles.lookup();
                 fp = l.findStatic(c, "floatPanel", MethodType.methodType(void.class, float[].class, int.class,
-                        int.class, float[].class, int.class, float[].class, int.class, int.class, float[].class,
-                        int.class, boolean.class));
+                        int.class, float[].class, int.class, float[].class, int.class, int.class, int[].class,
+                        int.class));
                 ip = l.findStatic(c, "intPanel", MethodType.methodType(void.class, int[].class, int.class, int.class,
                         int[].class, int.class, int[].class, int.class, int.class, int[].class, int.class));
                 cp = l.findStatic(c, "convPositions", MethodType.methodType(void.class, float[].class, int.class,
@@ -180,16 +179,27 @@ public final class ForwardKernels {
             if (n == 0 || out == 0) {
                 return y;
             }
+            if (!vector) {
+                for (int j0 = 0; j0 < out; j0 += panelWidth(j0, out, FLOAT_LANES)) {
+                    plainFloatPanel(x, n, in, w, j0 * in, b, j0, panelWidth(j0, out, FLOAT_LANES), y, out, relu);
+                }
+                return y;
+            }
+            int[] bits = new int[n * out];
             for (int j0 = 0; j0 < out; j0 += panelWidth(j0, out, FLOAT_LANES)) {
-                int width = panelWidth(j0, out, FLOAT_LANES);
-                if (vector) {
-                    try {
-                        FLOAT_PANEL.invokeExact(x, n, in, w, j0 * in, b, j0, width, y, out, relu);
-                    } catch (Throwable e) {
-                        throw unchecked(e);
-                    }
-                } else {
-                    plainFloatPanel(x, n, in, w, j0 * in, b, j0, width, y, out, relu);
+                try {
+                    FLOAT_PANEL.invokeExact(x, n, in, w, j0 * in, b, j0, panelWidth(j0, out, FLOAT_LANES), bits, out);
+                } catch (Throwable e) {
+                    throw unchecked(e);
+                }
+            }
+            if (relu) {
+                for (int i = 0; i < bits.length; i++) {
+                    y[i] = Math.max(0f, Float.intBitsToFloat(bits[i]));
+                }
+            } else {
+                for (int i = 0; i < bits.length; i++) {
+                    y[i] = Float.intBitsToFloat(bits[i]);
                 }
             }
             return y;

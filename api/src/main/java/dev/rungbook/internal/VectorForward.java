@@ -17,17 +17,24 @@ import jdk.incubator.vector.VectorSpecies;
  */
 final class VectorForward {
     /**
-     * 256-bit float vectors even where 512-bit ones exist. Measured on Java 17 (AVX-512 machine): with 512-bit
-     * vectors the sample classifier's float pass took 0.55 to 0.77 ms in a fresh JVM but 21 ms once the quantizers
-     * had run; with 256-bit vectors it takes 0.8 to 1.2 ms either way. The cause, from the JIT's inlining log: the
-     * quantizers' error sums store 256-bit float vectors through {@code FloatVector.intoArray} (and add and multiply
-     * them), so the receiver-type profile of those shared library methods holds two vector classes; the JIT then
-     * inlines both, the vector class is no longer a constant, and the store is not compiled to a vector instruction
-     * (every vector is boxed). With one float shape in the library the profiles stay monomorphic. The int kernel is
-     * the only user of int vectors and keeps the preferred (512-bit) shape.
+     * The preferred (512-bit with AVX-512) float vectors, stored as int vectors ({@code reinterpretAsInts}, the raw
+     * bits) and never combined with {@code add}/{@code mul}/{@code max}. Measured on Java 17: a first version stored
+     * with {@code FloatVector.intoArray} and applied the ReLU with {@code max}; the sample classifier's float pass took
+     * 0.55 to 0.77 ms in a fresh JVM but 21 ms once the quantizers had run. The JIT's inlining log showed why: the
+     * quantizers' error sums store and add 256-bit float vectors, so the receiver-type profiles of those shared
+     * library methods held two vector classes, the JIT inlined both, the vector class was no longer a constant and
+     * every vector was boxed. The methods used here (broadcast, load, fused multiply-add, reinterpretation, int
+     * store) have no other float-vector callers in the library, and the pass stays at 0.7 to 0.9 ms after the
+     * quantizers, or with 256-bit vector code of another library version in the same JVM (measured in
+     * {@code ForwardCpuTime}). A ReLU is applied while the bits are turned back into floats.
      */
-    private static final VectorSpecies<Float> F = FloatVector.SPECIES_256;
+    private static final VectorSpecies<Float> F = FloatVector.SPECIES_PREFERRED;
     private static final VectorSpecies<Integer> I = IntVector.SPECIES_PREFERRED;
+    /**
+     * The convolution kernel's vectors: 256-bit, the shape of the library's other float-vector code, since this kernel
+     * needs separate multiplies and adds (see {@link #F}).
+     */
+    private static final VectorSpecies<Float> C = FloatVector.SPECIES_256;
 
     private VectorForward() {
     }
@@ -44,22 +51,23 @@ final class VectorForward {
     /**
      * Float panel {@code [j0, j0 + width)} ({@code width} one or two vectors) of {@code y[n x out] = x[n x in] W^T +
      * b}: {@code pw} from {@code po} holds {@code in} rows of {@code width} weights, {@code pb} from {@code j0} the
-     * bias padded to the panel; with {@code relu} each output is {@code max(0, y)}. Blocks of eight and four rows,
+     * bias padded to the panel; the results are stored as their raw bits ({@code Float.floatToRawIntBits}) in
+     * {@code y}, through int vectors (see {@link #F}). Blocks of eight and four rows,
      * then the rest one by one; each case is a small method of its own, so that the JIT compiles each hot loop on its
      * own profile.
      */
-    static void floatPanel(float[] x, int n, int in, float[] pw, int po, float[] pb, int j0, int width, float[] y,
-            int out, boolean relu) {
+    static void floatPanel(float[] x, int n, int in, float[] pw, int po, float[] pb, int j0, int width, int[] y,
+            int out) {
         int cols = Math.min(width, out - j0);
         int n4 = n & ~3;
         if (width == 2 * F.length()) {
             int n8 = n & ~7;
-            floatTwo8(x, 0, n8, in, pw, po, pb, j0, y, out, cols, relu);
-            floatTwo4(x, n8, n4, in, pw, po, pb, j0, y, out, cols, relu);
-            floatTwo1(x, n4, n, in, pw, po, pb, j0, y, out, cols, relu);
+            floatTwo8(x, 0, n8, in, pw, po, pb, j0, y, out, cols);
+            floatTwo4(x, n8, n4, in, pw, po, pb, j0, y, out, cols);
+            floatTwo1(x, n4, n, in, pw, po, pb, j0, y, out, cols);
         } else {
-            floatOne4(x, 0, n4, in, pw, po, pb, j0, y, out, cols, relu);
-            floatOne1(x, n4, n, in, pw, po, pb, j0, y, out, cols, relu);
+            floatOne4(x, 0, n4, in, pw, po, pb, j0, y, out, cols);
+            floatOne1(x, n4, n, in, pw, po, pb, j0, y, out, cols);
         }
     }
 
@@ -80,11 +88,10 @@ final class VectorForward {
     }
 
     /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 4) of a two-vector float panel. */
-    private static void floatTwo4(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y, int out,
-            int cols, boolean relu) {
+    private static void floatTwo4(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, int[] y, int out,
+            int cols) {
         int l = F.length();
-        FloatVector zero = FloatVector.zero(F);
-        float[] tmp = new float[8 * l];
+        int[] tmp = new int[8 * l];
         FloatVector b0 = FloatVector.fromArray(F, pb, j0);
         FloatVector b1 = FloatVector.fromArray(F, pb, j0 + l);
         for (int i = i0; i < i1; i += 4) {
@@ -116,35 +123,25 @@ final class VectorForward {
                 c30 = w0.fma(a, c30);
                 c31 = w1.fma(a, c31);
             }
-            if (relu) { // Math.max(0, y): the vector max orders -0.0 below 0.0 and keeps NaN, as it does
-                c00 = c00.max(zero);
-                c01 = c01.max(zero);
-                c10 = c10.max(zero);
-                c11 = c11.max(zero);
-                c20 = c20.max(zero);
-                c21 = c21.max(zero);
-                c30 = c30.max(zero);
-                c31 = c31.max(zero);
-            }
             int y0 = i * out + j0;
             if (cols == 2 * l) {
-                c00.intoArray(y, y0);
-                c01.intoArray(y, y0 + l);
-                c10.intoArray(y, y0 + out);
-                c11.intoArray(y, y0 + out + l);
-                c20.intoArray(y, y0 + 2 * out);
-                c21.intoArray(y, y0 + 2 * out + l);
-                c30.intoArray(y, y0 + 3 * out);
-                c31.intoArray(y, y0 + 3 * out + l);
+                c00.reinterpretAsInts().intoArray(y, y0);
+                c01.reinterpretAsInts().intoArray(y, y0 + l);
+                c10.reinterpretAsInts().intoArray(y, y0 + out);
+                c11.reinterpretAsInts().intoArray(y, y0 + out + l);
+                c20.reinterpretAsInts().intoArray(y, y0 + 2 * out);
+                c21.reinterpretAsInts().intoArray(y, y0 + 2 * out + l);
+                c30.reinterpretAsInts().intoArray(y, y0 + 3 * out);
+                c31.reinterpretAsInts().intoArray(y, y0 + 3 * out + l);
             } else { // a partial panel: through the scratch rows (no helper method: vectors must not leave this one)
-                c00.intoArray(tmp, 0);
-                c01.intoArray(tmp, l);
-                c10.intoArray(tmp, 2 * l);
-                c11.intoArray(tmp, 3 * l);
-                c20.intoArray(tmp, 4 * l);
-                c21.intoArray(tmp, 5 * l);
-                c30.intoArray(tmp, 6 * l);
-                c31.intoArray(tmp, 7 * l);
+                c00.reinterpretAsInts().intoArray(tmp, 0);
+                c01.reinterpretAsInts().intoArray(tmp, l);
+                c10.reinterpretAsInts().intoArray(tmp, 2 * l);
+                c11.reinterpretAsInts().intoArray(tmp, 3 * l);
+                c20.reinterpretAsInts().intoArray(tmp, 4 * l);
+                c21.reinterpretAsInts().intoArray(tmp, 5 * l);
+                c30.reinterpretAsInts().intoArray(tmp, 6 * l);
+                c31.reinterpretAsInts().intoArray(tmp, 7 * l);
                 for (int r = 0; r < 4; r++) {
                     System.arraycopy(tmp, 2 * l * r, y, y0 + r * out, cols);
                 }
@@ -153,11 +150,10 @@ final class VectorForward {
     }
 
     /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 8) of a two-vector float panel. */
-    private static void floatTwo8(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y,
-            int out, int cols, boolean relu) {
+    private static void floatTwo8(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, int[] y,
+            int out, int cols) {
         int l = F.length();
-        FloatVector zero = FloatVector.zero(F);
-        float[] tmp = new float[2 * l];
+        int[] tmp = new int[2 * l];
         FloatVector b0 = FloatVector.fromArray(F, pb, j0);
         FloatVector b1 = FloatVector.fromArray(F, pb, j0 + l);
         for (int i = i0; i < i1; i += 8) {
@@ -213,77 +209,58 @@ final class VectorForward {
                 c70 = w0.fma(a, c70);
                 c71 = w1.fma(a, c71);
             }
-            if (relu) { // Math.max(0, y): the vector max orders -0.0 below 0.0 and keeps NaN, as it does
-                c00 = c00.max(zero);
-                c01 = c01.max(zero);
-                c10 = c10.max(zero);
-                c11 = c11.max(zero);
-                c20 = c20.max(zero);
-                c21 = c21.max(zero);
-                c30 = c30.max(zero);
-                c31 = c31.max(zero);
-                c40 = c40.max(zero);
-                c41 = c41.max(zero);
-                c50 = c50.max(zero);
-                c51 = c51.max(zero);
-                c60 = c60.max(zero);
-                c61 = c61.max(zero);
-                c70 = c70.max(zero);
-                c71 = c71.max(zero);
-            }
             int y0 = i * out + j0;
             if (cols == 2 * l) {
-                c00.intoArray(y, y0);
-                c01.intoArray(y, y0 + l);
-                c10.intoArray(y, y0 + out);
-                c11.intoArray(y, y0 + out + l);
-                c20.intoArray(y, y0 + 2 * out);
-                c21.intoArray(y, y0 + 2 * out + l);
-                c30.intoArray(y, y0 + 3 * out);
-                c31.intoArray(y, y0 + 3 * out + l);
-                c40.intoArray(y, y0 + 4 * out);
-                c41.intoArray(y, y0 + 4 * out + l);
-                c50.intoArray(y, y0 + 5 * out);
-                c51.intoArray(y, y0 + 5 * out + l);
-                c60.intoArray(y, y0 + 6 * out);
-                c61.intoArray(y, y0 + 6 * out + l);
-                c70.intoArray(y, y0 + 7 * out);
-                c71.intoArray(y, y0 + 7 * out + l);
+                c00.reinterpretAsInts().intoArray(y, y0);
+                c01.reinterpretAsInts().intoArray(y, y0 + l);
+                c10.reinterpretAsInts().intoArray(y, y0 + out);
+                c11.reinterpretAsInts().intoArray(y, y0 + out + l);
+                c20.reinterpretAsInts().intoArray(y, y0 + 2 * out);
+                c21.reinterpretAsInts().intoArray(y, y0 + 2 * out + l);
+                c30.reinterpretAsInts().intoArray(y, y0 + 3 * out);
+                c31.reinterpretAsInts().intoArray(y, y0 + 3 * out + l);
+                c40.reinterpretAsInts().intoArray(y, y0 + 4 * out);
+                c41.reinterpretAsInts().intoArray(y, y0 + 4 * out + l);
+                c50.reinterpretAsInts().intoArray(y, y0 + 5 * out);
+                c51.reinterpretAsInts().intoArray(y, y0 + 5 * out + l);
+                c60.reinterpretAsInts().intoArray(y, y0 + 6 * out);
+                c61.reinterpretAsInts().intoArray(y, y0 + 6 * out + l);
+                c70.reinterpretAsInts().intoArray(y, y0 + 7 * out);
+                c71.reinterpretAsInts().intoArray(y, y0 + 7 * out + l);
             } else { // a partial panel: through a scratch row (no helper method: vectors must not leave this one)
-                c00.intoArray(tmp, 0);
-                c01.intoArray(tmp, l);
+                c00.reinterpretAsInts().intoArray(tmp, 0);
+                c01.reinterpretAsInts().intoArray(tmp, l);
                 System.arraycopy(tmp, 0, y, y0, cols);
-                c10.intoArray(tmp, 0);
-                c11.intoArray(tmp, l);
+                c10.reinterpretAsInts().intoArray(tmp, 0);
+                c11.reinterpretAsInts().intoArray(tmp, l);
                 System.arraycopy(tmp, 0, y, y0 + out, cols);
-                c20.intoArray(tmp, 0);
-                c21.intoArray(tmp, l);
+                c20.reinterpretAsInts().intoArray(tmp, 0);
+                c21.reinterpretAsInts().intoArray(tmp, l);
                 System.arraycopy(tmp, 0, y, y0 + 2 * out, cols);
-                c30.intoArray(tmp, 0);
-                c31.intoArray(tmp, l);
+                c30.reinterpretAsInts().intoArray(tmp, 0);
+                c31.reinterpretAsInts().intoArray(tmp, l);
                 System.arraycopy(tmp, 0, y, y0 + 3 * out, cols);
-                c40.intoArray(tmp, 0);
-                c41.intoArray(tmp, l);
+                c40.reinterpretAsInts().intoArray(tmp, 0);
+                c41.reinterpretAsInts().intoArray(tmp, l);
                 System.arraycopy(tmp, 0, y, y0 + 4 * out, cols);
-                c50.intoArray(tmp, 0);
-                c51.intoArray(tmp, l);
+                c50.reinterpretAsInts().intoArray(tmp, 0);
+                c51.reinterpretAsInts().intoArray(tmp, l);
                 System.arraycopy(tmp, 0, y, y0 + 5 * out, cols);
-                c60.intoArray(tmp, 0);
-                c61.intoArray(tmp, l);
+                c60.reinterpretAsInts().intoArray(tmp, 0);
+                c61.reinterpretAsInts().intoArray(tmp, l);
                 System.arraycopy(tmp, 0, y, y0 + 6 * out, cols);
-                c70.intoArray(tmp, 0);
-                c71.intoArray(tmp, l);
+                c70.reinterpretAsInts().intoArray(tmp, 0);
+                c71.reinterpretAsInts().intoArray(tmp, l);
                 System.arraycopy(tmp, 0, y, y0 + 7 * out, cols);
             }
         }
     }
 
     /** Rows {@code [i0, i1)} of a two-vector float panel, one at a time. */
-    private static void floatTwo1(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y, int out,
-            int cols, boolean relu) {
+    private static void floatTwo1(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, int[] y, int out,
+            int cols) {
         int l = F.length();
-        FloatVector zero = FloatVector.zero(F);
-        float[] tmp = new float[8 * l];
+        int[] tmp = new int[8 * l];
         FloatVector b0 = FloatVector.fromArray(F, pb, j0);
         FloatVector b1 = FloatVector.fromArray(F, pb, j0 + l);
         for (int i = i0; i < i1; i++) {
@@ -295,22 +272,17 @@ final class VectorForward {
                 c0 = FloatVector.fromArray(F, pw, p).fma(a, c0);
                 c1 = FloatVector.fromArray(F, pw, p + l).fma(a, c1);
             }
-            if (relu) { // Math.max(0, y): the vector max orders -0.0 below 0.0 and keeps NaN, as it does
-                c0 = c0.max(zero);
-                c1 = c1.max(zero);
-            }
-            c0.intoArray(tmp, 0);
-            c1.intoArray(tmp, l);
+            c0.reinterpretAsInts().intoArray(tmp, 0);
+            c1.reinterpretAsInts().intoArray(tmp, l);
             System.arraycopy(tmp, 0, y, i * out + j0, cols);
         }
     }
 
     /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 4) of a one-vector float panel. */
-    private static void floatOne4(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y, int out,
-            int cols, boolean relu) {
+    private static void floatOne4(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, int[] y, int out,
+            int cols) {
         int l = F.length();
-        FloatVector zero = FloatVector.zero(F);
-        float[] tmp = new float[8 * l];
+        int[] tmp = new int[8 * l];
         FloatVector b0 = FloatVector.fromArray(F, pb, j0);
         for (int i = i0; i < i1; i += 4) {
             int x0 = i * in;
@@ -328,16 +300,10 @@ final class VectorForward {
                 c2 = w0.fma(FloatVector.broadcast(F, x[x2 + t]), c2);
                 c3 = w0.fma(FloatVector.broadcast(F, x[x3 + t]), c3);
             }
-            if (relu) { // Math.max(0, y): the vector max orders -0.0 below 0.0 and keeps NaN, as it does
-                c0 = c0.max(zero);
-                c1 = c1.max(zero);
-                c2 = c2.max(zero);
-                c3 = c3.max(zero);
-            }
-            c0.intoArray(tmp, 0);
-            c1.intoArray(tmp, l);
-            c2.intoArray(tmp, 2 * l);
-            c3.intoArray(tmp, 3 * l);
+            c0.reinterpretAsInts().intoArray(tmp, 0);
+            c1.reinterpretAsInts().intoArray(tmp, l);
+            c2.reinterpretAsInts().intoArray(tmp, 2 * l);
+            c3.reinterpretAsInts().intoArray(tmp, 3 * l);
             int y0 = i * out + j0;
             for (int r = 0; r < 4; r++) {
                 System.arraycopy(tmp, l * r, y, y0 + r * out, cols);
@@ -346,11 +312,10 @@ final class VectorForward {
     }
 
     /** Rows {@code [i0, i1)} of a one-vector float panel, one at a time. */
-    private static void floatOne1(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y, int out,
-            int cols, boolean relu) {
+    private static void floatOne1(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, int[] y, int out,
+            int cols) {
         int l = F.length();
-        FloatVector zero = FloatVector.zero(F);
-        float[] tmp = new float[8 * l];
+        int[] tmp = new int[8 * l];
         FloatVector b0 = FloatVector.fromArray(F, pb, j0);
         for (int i = i0; i < i1; i++) {
             int x0 = i * in;
@@ -358,10 +323,7 @@ final class VectorForward {
             for (int t = 0, p = po; t < in; t++, p += l) {
                 c0 = FloatVector.fromArray(F, pw, p).fma(FloatVector.broadcast(F, x[x0 + t]), c0);
             }
-            if (relu) { // Math.max(0, y): the vector max orders -0.0 below 0.0 and keeps NaN, as it does
-                c0 = c0.max(zero);
-            }
-            c0.intoArray(tmp, 0);
+            c0.reinterpretAsInts().intoArray(tmp, 0);
             System.arraycopy(tmp, 0, y, i * out + j0, cols);
         }
     }
@@ -509,7 +471,7 @@ final class VectorForward {
      * channels at a time; positions past the last whole vector take the scalar loop.
      */
     static void convPositions(float[] w, int out, int k, float[] col, int p, float[] b, float[] y, int yo) {
-        int l = F.length();
+        int l = C.length();
         int pv = p - p % l;
         int o = 0;
         for (; o + 2 <= out; o += 2) {
@@ -543,13 +505,13 @@ final class VectorForward {
 
     /** Output channels {@code o} and {@code o + 1} of {@link #convPositions}, positions below {@code pv}. */
     private static void convTwo(float[] w, int o, int k, float[] col, int p, int pv, float[] b, float[] y, int yo) {
-        int l = F.length();
+        int l = C.length();
         int wa = o * k;
         int wb = wa + k;
-        FloatVector ba = FloatVector.broadcast(F, b[o]);
-        FloatVector bb = FloatVector.broadcast(F, b[o + 1]);
+        FloatVector ba = FloatVector.broadcast(C, b[o]);
+        FloatVector bb = FloatVector.broadcast(C, b[o + 1]);
         for (int q = 0; q < pv; q += l) {
-            FloatVector a0 = FloatVector.zero(F);
+            FloatVector a0 = FloatVector.zero(C);
             FloatVector a1 = a0;
             FloatVector a2 = a0;
             FloatVector a3 = a0;
@@ -559,10 +521,10 @@ final class VectorForward {
             FloatVector c3 = a0;
             int t = 0;
             for (; t + 3 < k; t += 4) {
-                FloatVector x0 = FloatVector.fromArray(F, col, t * p + q);
-                FloatVector x1 = FloatVector.fromArray(F, col, (t + 1) * p + q);
-                FloatVector x2 = FloatVector.fromArray(F, col, (t + 2) * p + q);
-                FloatVector x3 = FloatVector.fromArray(F, col, (t + 3) * p + q);
+                FloatVector x0 = FloatVector.fromArray(C, col, t * p + q);
+                FloatVector x1 = FloatVector.fromArray(C, col, (t + 1) * p + q);
+                FloatVector x2 = FloatVector.fromArray(C, col, (t + 2) * p + q);
+                FloatVector x3 = FloatVector.fromArray(C, col, (t + 3) * p + q);
                 a0 = a0.add(x0.mul(w[wa + t]));
                 a1 = a1.add(x1.mul(w[wa + t + 1]));
                 a2 = a2.add(x2.mul(w[wa + t + 2]));
@@ -573,7 +535,7 @@ final class VectorForward {
                 c3 = c3.add(x3.mul(w[wb + t + 3]));
             }
             for (; t < k; t++) {
-                FloatVector x0 = FloatVector.fromArray(F, col, t * p + q);
+                FloatVector x0 = FloatVector.fromArray(C, col, t * p + q);
                 a0 = a0.add(x0.mul(w[wa + t]));
                 c0 = c0.add(x0.mul(w[wb + t]));
             }
@@ -584,23 +546,23 @@ final class VectorForward {
 
     /** Output channel {@code o} of {@link #convPositions}, positions below {@code pv}. */
     private static void convOne(float[] w, int o, int k, float[] col, int p, int pv, float[] b, float[] y, int yo) {
-        int l = F.length();
+        int l = C.length();
         int wa = o * k;
-        FloatVector ba = FloatVector.broadcast(F, b[o]);
+        FloatVector ba = FloatVector.broadcast(C, b[o]);
         for (int q = 0; q < pv; q += l) {
-            FloatVector a0 = FloatVector.zero(F);
+            FloatVector a0 = FloatVector.zero(C);
             FloatVector a1 = a0;
             FloatVector a2 = a0;
             FloatVector a3 = a0;
             int t = 0;
             for (; t + 3 < k; t += 4) {
-                a0 = a0.add(FloatVector.fromArray(F, col, t * p + q).mul(w[wa + t]));
-                a1 = a1.add(FloatVector.fromArray(F, col, (t + 1) * p + q).mul(w[wa + t + 1]));
-                a2 = a2.add(FloatVector.fromArray(F, col, (t + 2) * p + q).mul(w[wa + t + 2]));
-                a3 = a3.add(FloatVector.fromArray(F, col, (t + 3) * p + q).mul(w[wa + t + 3]));
+                a0 = a0.add(FloatVector.fromArray(C, col, t * p + q).mul(w[wa + t]));
+                a1 = a1.add(FloatVector.fromArray(C, col, (t + 1) * p + q).mul(w[wa + t + 1]));
+                a2 = a2.add(FloatVector.fromArray(C, col, (t + 2) * p + q).mul(w[wa + t + 2]));
+                a3 = a3.add(FloatVector.fromArray(C, col, (t + 3) * p + q).mul(w[wa + t + 3]));
             }
             for (; t < k; t++) {
-                a0 = a0.add(FloatVector.fromArray(F, col, t * p + q).mul(w[wa + t]));
+                a0 = a0.add(FloatVector.fromArray(C, col, t * p + q).mul(w[wa + t]));
             }
             a0.add(a1).add(a2.add(a3)).add(ba).intoArray(y, yo + o * p + q);
         }
