@@ -1,5 +1,6 @@
 package dev.rungbook.nn;
 
+import dev.rungbook.internal.ForwardKernels;
 import dev.rungbook.internal.TensorAccess;
 import dev.rungbook.tensor.DType;
 import dev.rungbook.tensor.Tensor;
@@ -146,9 +147,74 @@ public final class Conv2d implements WeightedLayer {
     @Override
     public Tensor forward(Tensor batch) {
         int[] os = outputShape(batch.shape());
-        float[] y = forward(TensorAccess.data(batch), batch.shape(), os, TensorAccess.data(weight),
-                TensorAccess.data(bias), null);
+        float[] x = TensorAccess.data(batch);
+        float[] y = ForwardKernels.vectorised() ? forwardTapMajor(x, batch.shape(), os)
+                : forward(x, batch.shape(), os, TensorAccess.data(weight), TensorAccess.data(bias), null);
         return TensorAccess.wrap(y, os, DType.F32, null);
+    }
+
+    /**
+     * The forward pass with the receptive fields laid out tap-major ({@code [in*kh*kw, P]}, positions contiguous)
+     * and {@link ForwardKernels#convPositions} running over positions on the Vector API. Each output is summed in
+     * the order of the dot-product kernel of {@link #forward(float[], int[], int[], float[], float[], float[][])},
+     * so the two give the same bits.
+     */
+    private float[] forwardTapMajor(float[] x, int[] is, int[] os) {
+        int n = is[0];
+        int out = os[1];
+        int p = os[2] * os[3];
+        int k = inChannels() * kernelHeight() * kernelWidth();
+        float[] w = TensorAccess.data(weight);
+        float[] b = TensorAccess.data(bias);
+        float[] y = new float[n * out * p];
+        float[] col = new float[k * p];
+        for (int s = 0; s < n; s++) {
+            tapMajor(x, s, is, os, col);
+            ForwardKernels.convPositions(w, out, k, col, p, b, y, s * out * p);
+        }
+        return y;
+    }
+
+    /** Sample {@code s}'s receptive fields as {@code col[(c, u, v), q]} (zero where padded), positions contiguous. */
+    private void tapMajor(float[] x, int s, int[] is, int[] os, float[] col) {
+        int c = is[1];
+        int h = is[2];
+        int wd = is[3];
+        int kh = kernelHeight();
+        int kw = kernelWidth();
+        int oh = os[2];
+        int ow = os[3];
+        int p = oh * ow;
+        int t = 0;
+        for (int ch = 0; ch < c; ch++) {
+            int plane = (s * c + ch) * h;
+            for (int u = 0; u < kh; u++) {
+                for (int v = 0; v < kw; v++, t++) {
+                    int row = t * p;
+                    // output columns j whose input column j*stride + v - padding lies inside [0, wd)
+                    int jlo = Math.max(0, (padding - v + stride - 1) / stride);
+                    int jhi = Math.min(ow, Math.floorDiv(wd - 1 + padding - v, stride) + 1);
+                    for (int i = 0; i < oh; i++) {
+                        int yi = i * stride + u - padding;
+                        int at = row + i * ow;
+                        if (yi < 0 || yi >= h || jlo >= jhi) {
+                            java.util.Arrays.fill(col, at, at + ow, 0f);
+                            continue;
+                        }
+                        java.util.Arrays.fill(col, at, at + jlo, 0f);
+                        int src = (plane + yi) * wd + jlo * stride + v - padding;
+                        if (stride == 1) {
+                            System.arraycopy(x, src, col, at + jlo, jhi - jlo);
+                        } else {
+                            for (int j = jlo; j < jhi; j++, src += stride) {
+                                col[at + j] = x[src];
+                            }
+                        }
+                        java.util.Arrays.fill(col, at + jhi, at + ow, 0f);
+                    }
+                }
+            }
+        }
     }
 
     /** The forward pass on raw arrays; keeps each sample's im2col matrix in {@code cols} when it is not null. */

@@ -1,5 +1,6 @@
 package dev.rungbook.nn;
 
+import dev.rungbook.internal.ForwardKernels;
 import dev.rungbook.internal.TensorAccess;
 import dev.rungbook.quant.Quantizer;
 import dev.rungbook.range.RangeRule;
@@ -51,14 +52,25 @@ public final class IntegerNetwork {
         SINGLE_ROUNDING
     }
 
-    /** One linear layer in integer form; {@code wide} holds the weight codes as ints, [out, in]. */
+    /**
+     * One linear layer in integer form; {@code wide} holds the weight codes as ints, [out, in], and {@code panels}
+     * the same packed for the forward kernel (null without the Vector API, where the plain loop runs).
+     */
     private record IntLayer(String name, int in, int out, byte[] weights, int[] bias, float[] weightScales,
             FixedPoint[] multipliers, double outputScale, int outputZeroPoint, boolean relu, int weightBits,
-            int[] wide, int[] weightSums) {
+            int[] wide, int[] weightSums, ForwardKernels.IntPanels panels) {
         IntLayer(String name, int in, int out, byte[] weights, int[] bias, float[] weightScales,
                 FixedPoint[] multipliers, double outputScale, int outputZeroPoint, boolean relu, int weightBits) {
             this(name, in, out, weights, bias, weightScales, multipliers, outputScale, outputZeroPoint, relu,
                     weightBits, widen(weights), rowSums(weights, out, in));
+        }
+
+        IntLayer(String name, int in, int out, byte[] weights, int[] bias, float[] weightScales,
+                FixedPoint[] multipliers, double outputScale, int outputZeroPoint, boolean relu, int weightBits,
+                int[] wide, int[] weightSums) {
+            this(name, in, out, weights, bias, weightScales, multipliers, outputScale, outputZeroPoint, relu,
+                    weightBits, wide, weightSums,
+                    ForwardKernels.vectorised() ? ForwardKernels.IntPanels.of(wide, out, in) : null);
         }
     }
 
@@ -332,8 +344,12 @@ public final class IntegerNetwork {
         float[] v = TensorAccess.data(x);
         int qmax = (1 << bits) - 1;
         int[] q = new int[v.length];
+        double s = inputScale;
+        int zp = inputZeroPoint;
         for (int i = 0; i < v.length; i++) {
-            q[i] = (int) Math.max(0, Math.min(qmax, Math.rint(v[i] / inputScale) + inputZeroPoint));
+            // clamp(rint(v / s) + zp, 0, qmax) by comparisons: NaN fails both and gives 0, as (int) NaN does
+            double c = Math.rint(v[i] / s) + zp;
+            q[i] = c >= qmax ? qmax : c > 0 ? (int) c : 0;
         }
         return q;
     }
@@ -371,11 +387,77 @@ public final class IntegerNetwork {
      * Layer {@code i} on integer inputs {@code a} (zero point {@code zx}, {@code n} samples): int32 accumulation, then
      * requantization by the fixed-point multiplier in this network's mode ({@code fixedPoint}) or by the real
      * multiplier rounded half up. The input zero point is folded into the bias:
-     * {@code sum_j w_j (a_j - zx) = sum_j w_j a_j - zx sum_j w_j}, the same int32 value. The inner loop is an int32
-     * dot product (a reduction the JIT vectorises, integer addition being associative) over two samples at a time,
-     * so that each weight loaded serves both.
+     * {@code sum_j w_j (a_j - zx) = sum_j w_j a_j - zx sum_j w_j}, the same int32 value. The products run in
+     * {@link ForwardKernels.IntPanels} (packed weights, blocks of samples and output columns held in registers) when
+     * the Vector API is there, else in {@link #layerCodesPlain}; the codes are the same.
      */
     int[] layerCodes(int i, int[] a, int zx, int n, boolean fixedPoint) {
+        IntLayer l = layers.get(i);
+        if (l.panels == null) {
+            return layerCodesPlain(i, a, zx, n, fixedPoint);
+        }
+        int qmax = (1 << bits) - 1;
+        int lo = l.relu ? l.outputZeroPoint : 0;
+        int out = l.out;
+        int[] folded = new int[out];
+        for (int c = 0; c < out; c++) {
+            folded[c] = l.bias[c] - zx * l.weightSums[c];
+        }
+        int[] y = l.panels.accumulate(a, n, folded);
+        boolean single = requantization == Requantization.SINGLE_ROUNDING;
+        int zy = l.outputZeroPoint;
+        int[] m0 = new int[out];
+        int[] sh = new int[out];
+        boolean plainShifts = fixedPoint && !single;
+        for (int c = 0; c < out; c++) {
+            m0[c] = l.multipliers[c].multiplier();
+            sh[c] = l.multipliers[c].shift();
+            plainShifts &= sh[c] >= 0 && sh[c] <= 31;
+        }
+        for (int s = 0; s < n; s++) {
+            int row = s * out;
+            if (plainShifts) {
+                requantizeRow(y, row, out, m0, sh, zy, lo, qmax);
+                continue;
+            }
+            for (int c = 0; c < out; c++) {
+                y[row + c] = requantize(y[row + c], l.multipliers[c], fixedPoint, single, zy, lo, qmax);
+            }
+        }
+        return y;
+    }
+
+    /**
+     * {@code y[row + c] = clamp(zy + FixedPoint.apply(y[row + c]), lo, qmax)} for {@code c < out}, every shift in
+     * [0, 31]: the published double rounding ({@link FixedPoint#saturatingRoundingDoublingHighMul} then
+     * {@link FixedPoint#roundingDivideByPowerOfTwo}) written without branches, so that the loop runs at a few
+     * cycles per output. Same integers: the doubling high multiply cannot saturate ({@code M0 >= 2^30}), its nudge is
+     * {@code 2^30} or {@code 1 - 2^30} by the sign of the product, the division by {@code 2^31} truncates toward
+     * zero (add {@code 2^31 - 1} to negative values before the arithmetic shift), at shift 0 the rounding shift's
+     * mask and remainder are 0, which leaves the value as it is, {@code remainder > threshold} is the sign bit of
+     * {@code threshold - remainder} (both in [0, 2^31)), and clamping {@code r} to {@code qmax - zy} before adding
+     * {@code zy} cannot overflow. Tested against {@link FixedPoint#apply}.
+     */
+    static void requantizeRow(int[] y, int row, int out, int[] m0, int[] shift, int zy, int lo, int qmax) {
+        int top = qmax - zy;
+        for (int c = 0; c < out; c++) {
+            long ab = (long) y[row + c] * m0[c];
+            long t = ab + ((1L << 30) - ((ab >> 63) & ((1L << 31) - 1)));
+            int x = (int) ((t + ((t >> 63) & ((1L << 31) - 1))) >> 31);
+            int e = shift[c];
+            int mask = (1 << e) - 1;
+            int threshold = (mask >> 1) + (x >>> 31);
+            int r = (x >> e) + ((threshold - (x & mask)) >>> 31);
+            y[row + c] = Math.max(lo, Math.min(r, top) + zy);
+        }
+    }
+
+    /**
+     * {@link #layerCodes} without the Vector API, as it was before the packed kernel: an int32 dot product per output
+     * (a reduction the JIT vectorises) over two samples at a time, so that each weight loaded serves both. Also the
+     * reference the packed kernel is tested against.
+     */
+    int[] layerCodesPlain(int i, int[] a, int zx, int n, boolean fixedPoint) {
         IntLayer l = layers.get(i);
         int qmax = (1 << bits) - 1;
         int lo = l.relu ? l.outputZeroPoint : 0;

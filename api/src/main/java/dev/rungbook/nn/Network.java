@@ -357,8 +357,14 @@ public final class Network {
      */
     public Tensor forward(Tensor batch) {
         Tensor x = batch;
-        for (Layer l : layers) {
-            x = l.forward(x);
+        for (int i = 0; i < layers.size(); i++) {
+            Layer l = layers.get(i);
+            if (l instanceof Linear && i + 1 < layers.size() && layers.get(i + 1) instanceof Relu) {
+                x = ((Linear) l).forwardRelu(x); // the same values as the two layers one after the other
+                i++;
+            } else {
+                x = l.forward(x);
+            }
         }
         return x;
     }

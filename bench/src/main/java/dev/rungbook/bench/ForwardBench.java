@@ -26,19 +26,27 @@ import org.openjdk.jmh.annotations.State;
 import org.openjdk.jmh.annotations.Warmup;
 
 /**
- * Float and integer-only forward passes of the sample classifier ({@code fc1 [256,72] -> ReLU -> fc2 [128,256] ->
- * ReLU -> fc3 [5,128]}) on a batch of 512 validation samples, with the machine's multiply-add throughput measured in
- * the same run: a float32 1024^3 product through the library's linear algebra (native BLAS when it loads), a Java
- * float FMA loop and a Java int32 multiply-add loop over L1-resident arrays (what the JIT makes of each arithmetic).
- * One forward pass is {@code 512 * (72*256 + 256*128 + 128*5) = 26.5M} multiply-adds; {@code bench/summarize.py}
- * turns the times into GFLOP/s and GOP/s (2 operations per multiply-add) and shares of the peaks. Single-threaded
- * Java (the sgemm may use every core). Sample-time mode: on a shared machine the fastest samples (p0) and the
- * median tell apart the code's speed and the machine's load; the summary reports both.
+ * Float and integer-only forward passes of the sample classifier {@code conveyor-mlp} ({@code fc1 [256,72] -> ReLU ->
+ * fc2 [128,256] -> ReLU -> fc3 [5,128]}) and the float pass of the thermal-tile conv net {@code thermal-cnn} (batch
+ * norms folded) on batches of 512 validation samples, with the machine's multiply-add throughput measured in the same
+ * run. The integer-only network handles linear and ReLU layers only, so the integer figure is for the classifier.
+ * One classifier pass is {@code 512 * (72*256 + 256*128 + 128*5) = 26.5M} multiply-adds, one conv-net pass
+ * {@code 512 * (8*9*256 + 16*72*64 + 4*256) = 47.7M}; {@code bench/summarize.py} turns the times into GFLOP/s and
+ * GOP/s (2 operations per multiply-add) and shares of the peaks.
+ *
+ * <p>Every benchmark runs on one thread, the forward passes and the peaks alike; {@code bench/run} sets
+ * {@code OPENBLAS_NUM_THREADS=1} so that the native sgemm does too. The fork runs with
+ * {@code --add-modules jdk.incubator.vector}, as the notebook kernel does, so the forward passes take their Vector
+ * API kernels and the register-resident peaks ({@link VectorPeaks}) can be measured: those, not the streaming loops
+ * (which load two values and store one per multiply-add and so reach only a quarter to a third of the arithmetic's
+ * throughput), are the ceiling the targets are measured against. Sample-time mode: on a shared machine the fastest
+ * samples (p0) and the median tell apart the code's speed and the machine's load; the summary reports both.
+ * {@link ForwardCpuTime} measures the same cases by thread CPU time, with an older library version side by side.
  */
 @State(Scope.Benchmark)
 @BenchmarkMode(Mode.SampleTime)
 @OutputTimeUnit(TimeUnit.MILLISECONDS)
-@Fork(1)
+@Fork(value = 1, jvmArgsAppend = {"--add-modules", "jdk.incubator.vector"})
 @Warmup(iterations = 3, time = 1)
 @Measurement(iterations = 5, time = 1)
 public class ForwardBench {
@@ -48,6 +56,8 @@ public class ForwardBench {
     private static final int REPS = 4096;
 
     private Network net;
+    private Network cnn;
+    private Tensor cnnBatch;
     private SimulatedNetwork sim;
     private IntegerNetwork integer;
     private IntegerNetwork integerSingle;
@@ -87,6 +97,16 @@ public class ForwardBench {
         sim = NetworkQuantization.of(net).calibrate(cal);
         integer = IntegerNetwork.of(sim);
         integerSingle = integer.requantization(IntegerNetwork.Requantization.SINGLE_ROUNDING);
+        Map<String, Tensor> ct = new HashMap<>();
+        try (Checkpoint c = Checkpoint.open(dir.resolve("thermal-cnn.f32.safetensors"))) {
+            c.tensors().forEach((k, v) -> ct.put(k, Tensor.of(v.toFloatArray(), v.shape()).withName(k)));
+        }
+        cnn = Network.from(ct).conv2d("conv1", 1, 1).batchNorm("bn1").relu().maxPool(2, 2).conv2d("conv2", 1, 1)
+                .batchNorm("bn2").relu().maxPool(2, 2).flatten().linear("fc").build().foldBatchNorm();
+        float[] tiles = new float[BATCH * 256];
+        System.arraycopy(Dataset.load(dir.resolve("thermal-validation.npz")).inputs().toFloatArray(), 0, tiles, 0,
+                tiles.length);
+        cnnBatch = Tensor.of(tiles, BATCH, 1, 16, 16);
         ga = new float[1024 * 1024];
         gb = new float[1024 * 1024];
         gc = new float[1024 * 1024];
@@ -109,6 +129,12 @@ public class ForwardBench {
     @Benchmark
     public Tensor floatForward() {
         return net.forward(batch);
+    }
+
+    /** The float forward pass of the thermal-tile conv net (batch norms folded) on 512 tiles. */
+    @Benchmark
+    public Tensor cnnFloatForward() {
+        return cnn.forward(cnnBatch);
     }
 
     /** The integer-only forward pass (input quantization, int32 accumulation, published requantization). */
@@ -134,6 +160,18 @@ public class ForwardBench {
     public float peakSgemm() {
         LinearAlgebra.instance().sgemm(false, false, 1024, 1024, 1024, ga, gb, gc);
         return gc[0];
+    }
+
+    /** Register-resident float FMA chains ({@link VectorPeaks}): the float multiply-add ceiling. */
+    @Benchmark
+    public float peakVectorFma() {
+        return VectorPeaks.floatFma(fx, fmultiplier);
+    }
+
+    /** Register-resident int32 multiply-add chains ({@link VectorPeaks}): the int32 multiply-add ceiling. */
+    @Benchmark
+    public int peakVectorInt32MulAdd() {
+        return VectorPeaks.intMulAdd(ix, multiplier);
     }
 
     /** Java float FMA loop: {@code y = fma(x, a, y)} over 1024 floats, 4096 times (4M multiply-adds). */

@@ -1,0 +1,377 @@
+package dev.rungbook.internal;
+
+import java.lang.invoke.MethodHandle;
+import java.lang.invoke.MethodHandles;
+import java.lang.invoke.MethodType;
+
+/**
+ * Forward-pass kernels of fully connected layers: {@code y[n x out] = x[n x in] W^T + b} in float32 and
+ * {@code acc[n x out] = init + x[n x in] W^T} in int32, with the weight {@code W} ({@code [out, in]}, row-major)
+ * packed once into panels of output columns. Internal.
+ *
+ * <p>Packing: the output columns are cut into panels two vectors wide ({@code 2 L} columns, {@code L} the lanes of
+ * the JVM's preferred vectors, 16 with AVX-512; 8 on the plain path), the last one a single vector when at most {@code L} columns
+ * remain; panel {@code [j0, j0 + width)} stores, for each input index {@code t}, the {@code width} weights
+ * {@code W[j0 + jj, t]} next to each other (zeros past {@code out}), from offset {@code j0 * in}. A kernel then reads
+ * each panel row as one or two vectors.
+ *
+ * <p>When the JVM runs with {@code --add-modules jdk.incubator.vector} (and the system property
+ * {@code rungbook.vector} is not {@code false}) the panels run on the Vector API ({@link #vectorised()}): blocks of
+ * four rows of {@code x} keep their outputs in registers while {@code t} runs. Otherwise plain loops over the same
+ * panels run. Either way every output is summed from its bias (or initial value) over {@code t = 0, 1, ...} in
+ * increasing order, each float step one fused multiply-add ({@link Math#fma}), exactly as
+ * {@link #referenceAffine}; the results are those of the reference loops bit for bit (integers: exactly, int32
+ * arithmetic wrapping as Java's does).
+ */
+public final class ForwardKernels {
+    private static final MethodHandle FLOAT_PANEL;
+    private static final MethodHandle INT_PANEL;
+    private static final MethodHandle CONV_POSITIONS;
+    private static final int FLOAT_LANES;
+    private static final int INT_LANES;
+
+    static {
+        MethodHandle fp = null;
+        MethodHandle ip = null;
+        MethodHandle cp = null;
+        int floatLanes = 8;
+        int intLanes = 8;
+        if (ModuleLayer.boot().findModule("jdk.incubator.vector").isPresent()
+                && !"false".equals(System.getProperty("rungbook.vector"))) {
+            try {
+                Class<?> c = Class.forName("dev.rungbook.internal.VectorForward");
+                MethodHandles.Lookup l = MethodHandles.lookup();
+                fp = l.findStatic(c, "floatPanel", MethodType.methodType(void.class, float[].class, int.class,
+                        int.class, float[].class, int.class, float[].class, int.class, int.class, int[].class,
+                        int.class));
+                ip = l.findStatic(c, "intPanel", MethodType.methodType(void.class, int[].class, int.class, int.class,
+                        int[].class, int.class, int[].class, int.class, int.class, int[].class, int.class));
+                cp = l.findStatic(c, "convPositions", MethodType.methodType(void.class, float[].class, int.class,
+                        int.class, float[].class, int.class, float[].class, float[].class, int.class));
+                floatLanes = (int) l.findStatic(c, "floatLanes", MethodType.methodType(int.class)).invokeExact();
+                intLanes = (int) l.findStatic(c, "intLanes", MethodType.methodType(int.class)).invokeExact();
+            } catch (Throwable e) { // no usable Vector API: the plain loops
+                fp = null;
+                ip = null;
+                cp = null;
+                floatLanes = 8;
+                intLanes = 8;
+            }
+        }
+        FLOAT_PANEL = fp;
+        INT_PANEL = ip;
+        CONV_POSITIONS = cp;
+        FLOAT_LANES = floatLanes;
+        INT_LANES = intLanes;
+    }
+
+    private ForwardKernels() {
+    }
+
+    /** True when the panels run on the Vector API (see the class comment). */
+    public static boolean vectorised() {
+        return FLOAT_PANEL != null;
+    }
+
+    /** The width of the panel starting at column {@code j0} of {@code out}, panel unit {@code lanes}. */
+    private static int panelWidth(int j0, int out, int lanes) {
+        return out - j0 > lanes ? 2 * lanes : lanes;
+    }
+
+    /** {@code out} rounded up to whole panels. */
+    private static int paddedColumns(int out, int lanes) {
+        int j0 = 0;
+        while (j0 < out) {
+            j0 += panelWidth(j0, out, lanes);
+        }
+        return j0;
+    }
+
+    private static void checkShape(int out, int in, int length, String what) {
+        Checks.require(out >= 0 && in >= 0 && (long) out * in == length, "%s: weight [%d, %d] needs %d values, got %d",
+                what, out, in, (long) out * in, length);
+    }
+
+    private static void checkInput(int n, int in, int length, String what) {
+        Checks.require(n >= 0 && (long) n * in <= length, "%s: input [%d, %d] needs %d values, got %d", what, n, in,
+                (long) n * in, length);
+    }
+
+    private static RuntimeException unchecked(Throwable e) {
+        if (e instanceof RuntimeException) {
+            return (RuntimeException) e;
+        }
+        if (e instanceof Error) {
+            throw (Error) e;
+        }
+        return new IllegalStateException(e);
+    }
+
+    /** A float weight {@code [out, in]} and bias {@code [out]} packed into panels; immutable. */
+    public static final class FloatPanels {
+        private final float[] w;
+        private final float[] b;
+        private final int out;
+        private final int in;
+
+        private FloatPanels(float[] w, float[] b, int out, int in) {
+            this.w = w;
+            this.b = b;
+            this.out = out;
+            this.in = in;
+        }
+
+        /**
+         * Packs {@code w} ({@code [out, in]}, row-major) and {@code bias} ({@code [out]}); the arrays are copied, not
+         * kept.
+         */
+        public static FloatPanels of(float[] w, float[] bias, int out, int in) {
+            checkShape(out, in, w.length, "float panels");
+            Checks.require(bias.length == out, "float panels: bias has %d values for %d outputs", bias.length, out);
+            int padded = paddedColumns(out, FLOAT_LANES);
+            float[] pw = new float[padded * in];
+            float[] pb = new float[padded];
+            System.arraycopy(bias, 0, pb, 0, out);
+            for (int j0 = 0; j0 < out; j0 += panelWidth(j0, out, FLOAT_LANES)) {
+                int width = panelWidth(j0, out, FLOAT_LANES);
+                int base = j0 * in;
+                for (int jj = 0; jj < width && j0 + jj < out; jj++) {
+                    int row = (j0 + jj) * in;
+                    for (int t = 0; t < in; t++) {
+                        pw[base + t * width + jj] = w[row + t];
+                    }
+                }
+            }
+            return new FloatPanels(pw, pb, out, in);
+        }
+
+        /** Output features. */
+        public int out() {
+            return out;
+        }
+
+        /** Input features. */
+        public int in() {
+            return in;
+        }
+
+        /** {@code y[n x out] = x[n x in] W^T + b} as a new array; {@code x} is not modified. */
+        public float[] affine(float[] x, int n) {
+            return affine(x, n, false, FLOAT_PANEL != null);
+        }
+
+        /**
+         * {@code max(0, x W^T + b)} ({@link Math#max}, element by element) as a new array: the affine map followed by
+         * a ReLU, in one pass.
+         */
+        public float[] affineRelu(float[] x, int n) {
+            return affine(x, n, true, FLOAT_PANEL != null);
+        }
+
+        /**
+         * {@link #affine(float[], int)} (or with {@code relu} {@link #affineRelu}) on the Vector API panels or, with
+         * {@code vector} false, the plain loops.
+         */
+        float[] affine(float[] x, int n, boolean relu, boolean vector) {
+            Checks.require(!vector || FLOAT_PANEL != null, "float panels: the Vector API is not available");
+            checkInput(n, in, x.length, "float panels");
+            float[] y = new float[n * out];
+            if (n == 0 || out == 0) {
+                return y;
+            }
+            if (!vector) {
+                for (int j0 = 0; j0 < out; j0 += panelWidth(j0, out, FLOAT_LANES)) {
+                    plainFloatPanel(x, n, in, w, j0 * in, b, j0, panelWidth(j0, out, FLOAT_LANES), y, out, relu);
+                }
+                return y;
+            }
+            int[] bits = new int[n * out];
+            for (int j0 = 0; j0 < out; j0 += panelWidth(j0, out, FLOAT_LANES)) {
+                try {
+                    FLOAT_PANEL.invokeExact(x, n, in, w, j0 * in, b, j0, panelWidth(j0, out, FLOAT_LANES), bits, out);
+                } catch (Throwable e) {
+                    throw unchecked(e);
+                }
+            }
+            if (relu) {
+                for (int i = 0; i < bits.length; i++) {
+                    y[i] = Math.max(0f, Float.intBitsToFloat(bits[i]));
+                }
+            } else {
+                for (int i = 0; i < bits.length; i++) {
+                    y[i] = Float.intBitsToFloat(bits[i]);
+                }
+            }
+            return y;
+        }
+    }
+
+    /** An int weight {@code [out, in]} packed into panels; immutable. */
+    public static final class IntPanels {
+        private final int[] w;
+        private final int out;
+        private final int in;
+
+        private IntPanels(int[] w, int out, int in) {
+            this.w = w;
+            this.out = out;
+            this.in = in;
+        }
+
+        /** Packs {@code w} ({@code [out, in]}, row-major); the array is copied, not kept. */
+        public static IntPanels of(int[] w, int out, int in) {
+            checkShape(out, in, w.length, "int panels");
+            int padded = paddedColumns(out, INT_LANES);
+            int[] pw = new int[padded * in];
+            for (int j0 = 0; j0 < out; j0 += panelWidth(j0, out, INT_LANES)) {
+                int width = panelWidth(j0, out, INT_LANES);
+                int base = j0 * in;
+                for (int jj = 0; jj < width && j0 + jj < out; jj++) {
+                    int row = (j0 + jj) * in;
+                    for (int t = 0; t < in; t++) {
+                        pw[base + t * width + jj] = w[row + t];
+                    }
+                }
+            }
+            return new IntPanels(pw, out, in);
+        }
+
+        /** Output features. */
+        public int out() {
+            return out;
+        }
+
+        /** Input features. */
+        public int in() {
+            return in;
+        }
+
+        /**
+         * {@code acc[n x out] = init[out] + x[n x in] W^T} in int32 arithmetic (wrapping on overflow, like Java's),
+         * as a new array; the arguments are not modified.
+         */
+        public int[] accumulate(int[] x, int n, int[] init) {
+            return accumulate(x, n, init, INT_PANEL != null);
+        }
+
+        /** {@link #accumulate(int[], int, int[])} on the Vector API or, with {@code vector} false, plain loops. */
+        int[] accumulate(int[] x, int n, int[] init, boolean vector) {
+            Checks.require(!vector || INT_PANEL != null, "int panels: the Vector API is not available");
+            checkInput(n, in, x.length, "int panels");
+            Checks.require(init.length == out, "int panels: %d initial values for %d outputs", init.length, out);
+            int[] y = new int[n * out];
+            if (n == 0 || out == 0) {
+                return y;
+            }
+            int[] pi = new int[paddedColumns(out, INT_LANES)];
+            System.arraycopy(init, 0, pi, 0, out);
+            for (int j0 = 0; j0 < out; j0 += panelWidth(j0, out, INT_LANES)) {
+                int width = panelWidth(j0, out, INT_LANES);
+                if (vector) {
+                    try {
+                        INT_PANEL.invokeExact(x, n, in, w, j0 * in, pi, j0, width, y, out);
+                    } catch (Throwable e) {
+                        throw unchecked(e);
+                    }
+                } else {
+                    plainIntPanel(x, n, in, w, j0 * in, pi, j0, width, y, out);
+                }
+            }
+            return y;
+        }
+    }
+
+    /**
+     * One sample of a convolution: {@code y[yo + o p + q] = ((s0 + s1) + (s2 + s3)) + b[o]}, where {@code s_r} sums
+     * {@code w[o, t] * col[t, q]} (each product rounded, then added) over the taps {@code t = r, r + 4, ...} below
+     * {@code k - k mod 4}, and the last {@code k mod 4} taps go to {@code s0}: the order of a dot product with four
+     * partial sums, so any implementation gives the same bits. {@code w} is {@code [out, k]}, {@code col}
+     * {@code [k, p]} (the receptive fields, tap-major: positions contiguous), {@code b} {@code [out]}. Runs on the
+     * Vector API (vectors over positions); call only when {@link #vectorised()}.
+     */
+    public static void convPositions(float[] w, int out, int k, float[] col, int p, float[] b, float[] y, int yo) {
+        Checks.require(CONV_POSITIONS != null, "convPositions: the Vector API is not available");
+        Checks.require((long) out * k <= w.length && (long) k * p <= col.length && b.length >= out
+                && yo >= 0 && yo + (long) out * p <= y.length, "convPositions: arrays too short for [%d, %d] x [%d, %d]",
+                out, k, k, p);
+        try {
+            CONV_POSITIONS.invokeExact(w, out, k, col, p, b, y, yo);
+        } catch (Throwable e) {
+            throw unchecked(e);
+        }
+    }
+
+    /** The float panel as plain loops: one row at a time, the panel's outputs in a scratch row. */
+    private static void plainFloatPanel(float[] x, int n, int in, float[] pw, int po, float[] pb, int j0, int width,
+            float[] y, int out, boolean relu) {
+        float[] acc = new float[width];
+        int cols = Math.min(width, out - j0);
+        for (int i = 0; i < n; i++) {
+            System.arraycopy(pb, j0, acc, 0, width);
+            int xi = i * in;
+            for (int t = 0, p = po; t < in; t++, p += width) {
+                float a = x[xi + t];
+                for (int jj = 0; jj < width; jj++) {
+                    acc[jj] = Math.fma(a, pw[p + jj], acc[jj]);
+                }
+            }
+            if (relu) {
+                for (int jj = 0; jj < width; jj++) {
+                    acc[jj] = Math.max(0f, acc[jj]);
+                }
+            }
+            System.arraycopy(acc, 0, y, i * out + j0, cols);
+        }
+    }
+
+    /** The int panel as plain loops. */
+    private static void plainIntPanel(int[] x, int n, int in, int[] pw, int po, int[] pi, int j0, int width, int[] y,
+            int out) {
+        int[] acc = new int[width];
+        int cols = Math.min(width, out - j0);
+        for (int i = 0; i < n; i++) {
+            System.arraycopy(pi, j0, acc, 0, width);
+            int xi = i * in;
+            for (int t = 0, p = po; t < in; t++, p += width) {
+                int a = x[xi + t];
+                for (int jj = 0; jj < width; jj++) {
+                    acc[jj] += a * pw[p + jj];
+                }
+            }
+            System.arraycopy(acc, 0, y, i * out + j0, cols);
+        }
+    }
+
+    /**
+     * The reference: {@code y[i, o] = b[o]}, then {@code y[i, o] = fma(x[i, t], w[o, t], y[i, o])} for
+     * {@code t = 0 .. in-1}; one output at a time, no packing. For tests and benchmarks.
+     */
+    public static float[] referenceAffine(float[] x, int n, float[] w, float[] b, int in, int out) {
+        float[] y = new float[n * out];
+        for (int i = 0; i < n; i++) {
+            for (int o = 0; o < out; o++) {
+                float s = b[o];
+                for (int t = 0; t < in; t++) {
+                    s = Math.fma(x[i * in + t], w[o * in + t], s);
+                }
+                y[i * out + o] = s;
+            }
+        }
+        return y;
+    }
+
+    /** The reference: {@code acc[i, o] = init[o] + sum_t x[i, t] w[o, t]} in int32, one output at a time. */
+    public static int[] referenceAccumulate(int[] x, int n, int[] w, int[] init, int in, int out) {
+        int[] y = new int[n * out];
+        for (int i = 0; i < n; i++) {
+            for (int o = 0; o < out; o++) {
+                int s = init[o];
+                for (int t = 0; t < in; t++) {
+                    s += x[i * in + t] * w[o * in + t];
+                }
+                y[i * out + o] = s;
+            }
+        }
+        return y;
+    }
+}

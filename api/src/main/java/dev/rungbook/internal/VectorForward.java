@@ -1,0 +1,570 @@
+package dev.rungbook.internal;
+
+import jdk.incubator.vector.FloatVector;
+import jdk.incubator.vector.IntVector;
+import jdk.incubator.vector.VectorSpecies;
+
+/**
+ * The register-blocked forward kernels of {@link ForwardKernels} on the JDK's incubating Vector API. Loaded (by
+ * {@link ForwardKernels}) only when the JVM runs with {@code --add-modules jdk.incubator.vector}; nothing else may
+ * refer to this class. Internal.
+ *
+ * <p>Each call computes one panel of output columns (one or two vectors wide, see {@link ForwardKernels}) for
+ * blocks of four rows: the block's outputs stay in eight (or four) vector registers while the input index {@code t}
+ * runs from 0 up, each step one broadcast input value per row times one packed weight vector, added with one
+ * rounding ({@code fma}) for floats or as int32 (wrapping) for integers. Every output is therefore summed in the
+ * same order as the scalar reference loop, bit for bit.
+ */
+final class VectorForward {
+    /**
+     * The preferred (512-bit with AVX-512) float vectors, stored as int vectors ({@code reinterpretAsInts}, the raw
+     * bits) and never combined with {@code add}/{@code mul}/{@code max}. Measured on Java 17: a first version stored
+     * with {@code FloatVector.intoArray} and applied the ReLU with {@code max}; the sample classifier's float pass took
+     * 0.55 to 0.77 ms in a fresh JVM but 21 ms once the quantizers had run. The JIT's inlining log showed why: the
+     * quantizers' error sums store and add 256-bit float vectors, so the receiver-type profiles of those shared
+     * library methods held two vector classes, the JIT inlined both, the vector class was no longer a constant and
+     * every vector was boxed. The methods used here (broadcast, load, fused multiply-add, reinterpretation, int
+     * store) have no other float-vector callers in the library, and the pass stays at 0.7 to 0.9 ms after the
+     * quantizers, or with 256-bit vector code of another library version in the same JVM (measured in
+     * {@code ForwardCpuTime}). A ReLU is applied while the bits are turned back into floats.
+     */
+    private static final VectorSpecies<Float> F = FloatVector.SPECIES_PREFERRED;
+    private static final VectorSpecies<Integer> I = IntVector.SPECIES_PREFERRED;
+    /**
+     * The convolution kernel's vectors: 256-bit, the shape of the library's other float-vector code, since this kernel
+     * needs separate multiplies and adds (see {@link #F}).
+     */
+    private static final VectorSpecies<Float> C = FloatVector.SPECIES_256;
+
+    private VectorForward() {
+    }
+
+    /** Lanes of the preferred float vector (the panel unit). */
+    static int floatLanes() {
+        return F.length();
+    }
+
+    static int intLanes() {
+        return I.length();
+    }
+
+    /**
+     * Float panel {@code [j0, j0 + width)} ({@code width} one or two vectors) of {@code y[n x out] = x[n x in] W^T +
+     * b}: {@code pw} from {@code po} holds {@code in} rows of {@code width} weights, {@code pb} from {@code j0} the
+     * bias padded to the panel; the results are stored as their raw bits ({@code Float.floatToRawIntBits}) in
+     * {@code y}, through int vectors (see {@link #F}). Blocks of eight and four rows,
+     * then the rest one by one; each case is a small method of its own, so that the JIT compiles each hot loop on its
+     * own profile.
+     */
+    static void floatPanel(float[] x, int n, int in, float[] pw, int po, float[] pb, int j0, int width, int[] y,
+            int out) {
+        int cols = Math.min(width, out - j0);
+        int n4 = n & ~3;
+        if (width == 2 * F.length()) {
+            int n8 = n & ~7;
+            floatTwo8(x, 0, n8, in, pw, po, pb, j0, y, out, cols);
+            floatTwo4(x, n8, n4, in, pw, po, pb, j0, y, out, cols);
+            floatTwo1(x, n4, n, in, pw, po, pb, j0, y, out, cols);
+        } else {
+            floatOne4(x, 0, n4, in, pw, po, pb, j0, y, out, cols);
+            floatOne1(x, n4, n, in, pw, po, pb, j0, y, out, cols);
+        }
+    }
+
+    /**
+     * Integer panel {@code [j0, j0 + width)} of {@code acc[n x out] = init + x[n x in] W^T} in int32 (wrapping),
+     * laid out as {@link #floatPanel}; {@code pi} from {@code j0} the initial values padded to the panel.
+     */
+    static void intPanel(int[] x, int n, int in, int[] pw, int po, int[] pi, int j0, int width, int[] y, int out) {
+        int cols = Math.min(width, out - j0);
+        int n4 = n & ~3;
+        if (width == 2 * I.length()) {
+            intTwo4(x, 0, n4, in, pw, po, pi, j0, y, out, cols);
+            intTwo1(x, n4, n, in, pw, po, pi, j0, y, out, cols);
+        } else {
+            intOne4(x, 0, n4, in, pw, po, pi, j0, y, out, cols);
+            intOne1(x, n4, n, in, pw, po, pi, j0, y, out, cols);
+        }
+    }
+
+    /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 4) of a two-vector float panel. */
+    private static void floatTwo4(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, int[] y, int out,
+            int cols) {
+        int l = F.length();
+        int[] tmp = new int[8 * l];
+        FloatVector b0 = FloatVector.fromArray(F, pb, j0);
+        FloatVector b1 = FloatVector.fromArray(F, pb, j0 + l);
+        for (int i = i0; i < i1; i += 4) {
+            int x0 = i * in;
+            int x1 = x0 + in;
+            int x2 = x1 + in;
+            int x3 = x2 + in;
+            FloatVector c00 = b0;
+            FloatVector c01 = b1;
+            FloatVector c10 = b0;
+            FloatVector c11 = b1;
+            FloatVector c20 = b0;
+            FloatVector c21 = b1;
+            FloatVector c30 = b0;
+            FloatVector c31 = b1;
+            for (int t = 0, p = po; t < in; t++, p += 2 * l) {
+                FloatVector w0 = FloatVector.fromArray(F, pw, p);
+                FloatVector w1 = FloatVector.fromArray(F, pw, p + l);
+                FloatVector a = FloatVector.broadcast(F, x[x0 + t]);
+                c00 = w0.fma(a, c00);
+                c01 = w1.fma(a, c01);
+                a = FloatVector.broadcast(F, x[x1 + t]);
+                c10 = w0.fma(a, c10);
+                c11 = w1.fma(a, c11);
+                a = FloatVector.broadcast(F, x[x2 + t]);
+                c20 = w0.fma(a, c20);
+                c21 = w1.fma(a, c21);
+                a = FloatVector.broadcast(F, x[x3 + t]);
+                c30 = w0.fma(a, c30);
+                c31 = w1.fma(a, c31);
+            }
+            int y0 = i * out + j0;
+            if (cols == 2 * l) {
+                c00.reinterpretAsInts().intoArray(y, y0);
+                c01.reinterpretAsInts().intoArray(y, y0 + l);
+                c10.reinterpretAsInts().intoArray(y, y0 + out);
+                c11.reinterpretAsInts().intoArray(y, y0 + out + l);
+                c20.reinterpretAsInts().intoArray(y, y0 + 2 * out);
+                c21.reinterpretAsInts().intoArray(y, y0 + 2 * out + l);
+                c30.reinterpretAsInts().intoArray(y, y0 + 3 * out);
+                c31.reinterpretAsInts().intoArray(y, y0 + 3 * out + l);
+            } else { // a partial panel: through the scratch rows (no helper method: vectors must not leave this one)
+                c00.reinterpretAsInts().intoArray(tmp, 0);
+                c01.reinterpretAsInts().intoArray(tmp, l);
+                c10.reinterpretAsInts().intoArray(tmp, 2 * l);
+                c11.reinterpretAsInts().intoArray(tmp, 3 * l);
+                c20.reinterpretAsInts().intoArray(tmp, 4 * l);
+                c21.reinterpretAsInts().intoArray(tmp, 5 * l);
+                c30.reinterpretAsInts().intoArray(tmp, 6 * l);
+                c31.reinterpretAsInts().intoArray(tmp, 7 * l);
+                for (int r = 0; r < 4; r++) {
+                    System.arraycopy(tmp, 2 * l * r, y, y0 + r * out, cols);
+                }
+            }
+        }
+    }
+
+    /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 8) of a two-vector float panel. */
+    private static void floatTwo8(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, int[] y,
+            int out, int cols) {
+        int l = F.length();
+        int[] tmp = new int[2 * l];
+        FloatVector b0 = FloatVector.fromArray(F, pb, j0);
+        FloatVector b1 = FloatVector.fromArray(F, pb, j0 + l);
+        for (int i = i0; i < i1; i += 8) {
+            int x0 = i * in;
+            int x1 = x0 + in;
+            int x2 = x1 + in;
+            int x3 = x2 + in;
+            int x4 = x3 + in;
+            int x5 = x4 + in;
+            int x6 = x5 + in;
+            int x7 = x6 + in;
+            FloatVector c00 = b0;
+            FloatVector c01 = b1;
+            FloatVector c10 = b0;
+            FloatVector c11 = b1;
+            FloatVector c20 = b0;
+            FloatVector c21 = b1;
+            FloatVector c30 = b0;
+            FloatVector c31 = b1;
+            FloatVector c40 = b0;
+            FloatVector c41 = b1;
+            FloatVector c50 = b0;
+            FloatVector c51 = b1;
+            FloatVector c60 = b0;
+            FloatVector c61 = b1;
+            FloatVector c70 = b0;
+            FloatVector c71 = b1;
+            for (int t = 0, p = po; t < in; t++, p += 2 * l) {
+                FloatVector w0 = FloatVector.fromArray(F, pw, p);
+                FloatVector w1 = FloatVector.fromArray(F, pw, p + l);
+                FloatVector a = FloatVector.broadcast(F, x[x0 + t]);
+                c00 = w0.fma(a, c00);
+                c01 = w1.fma(a, c01);
+                a = FloatVector.broadcast(F, x[x1 + t]);
+                c10 = w0.fma(a, c10);
+                c11 = w1.fma(a, c11);
+                a = FloatVector.broadcast(F, x[x2 + t]);
+                c20 = w0.fma(a, c20);
+                c21 = w1.fma(a, c21);
+                a = FloatVector.broadcast(F, x[x3 + t]);
+                c30 = w0.fma(a, c30);
+                c31 = w1.fma(a, c31);
+                a = FloatVector.broadcast(F, x[x4 + t]);
+                c40 = w0.fma(a, c40);
+                c41 = w1.fma(a, c41);
+                a = FloatVector.broadcast(F, x[x5 + t]);
+                c50 = w0.fma(a, c50);
+                c51 = w1.fma(a, c51);
+                a = FloatVector.broadcast(F, x[x6 + t]);
+                c60 = w0.fma(a, c60);
+                c61 = w1.fma(a, c61);
+                a = FloatVector.broadcast(F, x[x7 + t]);
+                c70 = w0.fma(a, c70);
+                c71 = w1.fma(a, c71);
+            }
+            int y0 = i * out + j0;
+            if (cols == 2 * l) {
+                c00.reinterpretAsInts().intoArray(y, y0);
+                c01.reinterpretAsInts().intoArray(y, y0 + l);
+                c10.reinterpretAsInts().intoArray(y, y0 + out);
+                c11.reinterpretAsInts().intoArray(y, y0 + out + l);
+                c20.reinterpretAsInts().intoArray(y, y0 + 2 * out);
+                c21.reinterpretAsInts().intoArray(y, y0 + 2 * out + l);
+                c30.reinterpretAsInts().intoArray(y, y0 + 3 * out);
+                c31.reinterpretAsInts().intoArray(y, y0 + 3 * out + l);
+                c40.reinterpretAsInts().intoArray(y, y0 + 4 * out);
+                c41.reinterpretAsInts().intoArray(y, y0 + 4 * out + l);
+                c50.reinterpretAsInts().intoArray(y, y0 + 5 * out);
+                c51.reinterpretAsInts().intoArray(y, y0 + 5 * out + l);
+                c60.reinterpretAsInts().intoArray(y, y0 + 6 * out);
+                c61.reinterpretAsInts().intoArray(y, y0 + 6 * out + l);
+                c70.reinterpretAsInts().intoArray(y, y0 + 7 * out);
+                c71.reinterpretAsInts().intoArray(y, y0 + 7 * out + l);
+            } else { // a partial panel: through a scratch row (no helper method: vectors must not leave this one)
+                c00.reinterpretAsInts().intoArray(tmp, 0);
+                c01.reinterpretAsInts().intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0, cols);
+                c10.reinterpretAsInts().intoArray(tmp, 0);
+                c11.reinterpretAsInts().intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0 + out, cols);
+                c20.reinterpretAsInts().intoArray(tmp, 0);
+                c21.reinterpretAsInts().intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0 + 2 * out, cols);
+                c30.reinterpretAsInts().intoArray(tmp, 0);
+                c31.reinterpretAsInts().intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0 + 3 * out, cols);
+                c40.reinterpretAsInts().intoArray(tmp, 0);
+                c41.reinterpretAsInts().intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0 + 4 * out, cols);
+                c50.reinterpretAsInts().intoArray(tmp, 0);
+                c51.reinterpretAsInts().intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0 + 5 * out, cols);
+                c60.reinterpretAsInts().intoArray(tmp, 0);
+                c61.reinterpretAsInts().intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0 + 6 * out, cols);
+                c70.reinterpretAsInts().intoArray(tmp, 0);
+                c71.reinterpretAsInts().intoArray(tmp, l);
+                System.arraycopy(tmp, 0, y, y0 + 7 * out, cols);
+            }
+        }
+    }
+
+    /** Rows {@code [i0, i1)} of a two-vector float panel, one at a time. */
+    private static void floatTwo1(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, int[] y, int out,
+            int cols) {
+        int l = F.length();
+        int[] tmp = new int[8 * l];
+        FloatVector b0 = FloatVector.fromArray(F, pb, j0);
+        FloatVector b1 = FloatVector.fromArray(F, pb, j0 + l);
+        for (int i = i0; i < i1; i++) {
+            int x0 = i * in;
+            FloatVector c0 = b0;
+            FloatVector c1 = b1;
+            for (int t = 0, p = po; t < in; t++, p += 2 * l) {
+                FloatVector a = FloatVector.broadcast(F, x[x0 + t]);
+                c0 = FloatVector.fromArray(F, pw, p).fma(a, c0);
+                c1 = FloatVector.fromArray(F, pw, p + l).fma(a, c1);
+            }
+            c0.reinterpretAsInts().intoArray(tmp, 0);
+            c1.reinterpretAsInts().intoArray(tmp, l);
+            System.arraycopy(tmp, 0, y, i * out + j0, cols);
+        }
+    }
+
+    /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 4) of a one-vector float panel. */
+    private static void floatOne4(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, int[] y, int out,
+            int cols) {
+        int l = F.length();
+        int[] tmp = new int[8 * l];
+        FloatVector b0 = FloatVector.fromArray(F, pb, j0);
+        for (int i = i0; i < i1; i += 4) {
+            int x0 = i * in;
+            int x1 = x0 + in;
+            int x2 = x1 + in;
+            int x3 = x2 + in;
+            FloatVector c0 = b0;
+            FloatVector c1 = b0;
+            FloatVector c2 = b0;
+            FloatVector c3 = b0;
+            for (int t = 0, p = po; t < in; t++, p += l) {
+                FloatVector w0 = FloatVector.fromArray(F, pw, p);
+                c0 = w0.fma(FloatVector.broadcast(F, x[x0 + t]), c0);
+                c1 = w0.fma(FloatVector.broadcast(F, x[x1 + t]), c1);
+                c2 = w0.fma(FloatVector.broadcast(F, x[x2 + t]), c2);
+                c3 = w0.fma(FloatVector.broadcast(F, x[x3 + t]), c3);
+            }
+            c0.reinterpretAsInts().intoArray(tmp, 0);
+            c1.reinterpretAsInts().intoArray(tmp, l);
+            c2.reinterpretAsInts().intoArray(tmp, 2 * l);
+            c3.reinterpretAsInts().intoArray(tmp, 3 * l);
+            int y0 = i * out + j0;
+            for (int r = 0; r < 4; r++) {
+                System.arraycopy(tmp, l * r, y, y0 + r * out, cols);
+            }
+        }
+    }
+
+    /** Rows {@code [i0, i1)} of a one-vector float panel, one at a time. */
+    private static void floatOne1(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, int[] y, int out,
+            int cols) {
+        int l = F.length();
+        int[] tmp = new int[8 * l];
+        FloatVector b0 = FloatVector.fromArray(F, pb, j0);
+        for (int i = i0; i < i1; i++) {
+            int x0 = i * in;
+            FloatVector c0 = b0;
+            for (int t = 0, p = po; t < in; t++, p += l) {
+                c0 = FloatVector.fromArray(F, pw, p).fma(FloatVector.broadcast(F, x[x0 + t]), c0);
+            }
+            c0.reinterpretAsInts().intoArray(tmp, 0);
+            System.arraycopy(tmp, 0, y, i * out + j0, cols);
+        }
+    }
+
+    /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 4) of a two-vector int panel. */
+    private static void intTwo4(int[] x, int i0, int i1, int in, int[] pw, int po, int[] pb, int j0, int[] y, int out,
+            int cols) {
+        int l = I.length();
+        int[] tmp = new int[8 * l];
+        IntVector b0 = IntVector.fromArray(I, pb, j0);
+        IntVector b1 = IntVector.fromArray(I, pb, j0 + l);
+        for (int i = i0; i < i1; i += 4) {
+            int x0 = i * in;
+            int x1 = x0 + in;
+            int x2 = x1 + in;
+            int x3 = x2 + in;
+            IntVector c00 = b0;
+            IntVector c01 = b1;
+            IntVector c10 = b0;
+            IntVector c11 = b1;
+            IntVector c20 = b0;
+            IntVector c21 = b1;
+            IntVector c30 = b0;
+            IntVector c31 = b1;
+            for (int t = 0, p = po; t < in; t++, p += 2 * l) {
+                IntVector w0 = IntVector.fromArray(I, pw, p);
+                IntVector w1 = IntVector.fromArray(I, pw, p + l);
+                IntVector a = IntVector.broadcast(I, x[x0 + t]);
+                c00 = c00.add(w0.mul(a));
+                c01 = c01.add(w1.mul(a));
+                a = IntVector.broadcast(I, x[x1 + t]);
+                c10 = c10.add(w0.mul(a));
+                c11 = c11.add(w1.mul(a));
+                a = IntVector.broadcast(I, x[x2 + t]);
+                c20 = c20.add(w0.mul(a));
+                c21 = c21.add(w1.mul(a));
+                a = IntVector.broadcast(I, x[x3 + t]);
+                c30 = c30.add(w0.mul(a));
+                c31 = c31.add(w1.mul(a));
+            }
+            int y0 = i * out + j0;
+            if (cols == 2 * l) {
+                c00.intoArray(y, y0);
+                c01.intoArray(y, y0 + l);
+                c10.intoArray(y, y0 + out);
+                c11.intoArray(y, y0 + out + l);
+                c20.intoArray(y, y0 + 2 * out);
+                c21.intoArray(y, y0 + 2 * out + l);
+                c30.intoArray(y, y0 + 3 * out);
+                c31.intoArray(y, y0 + 3 * out + l);
+            } else { // a partial panel: through the scratch rows (no helper method: vectors must not leave this one)
+                c00.intoArray(tmp, 0);
+                c01.intoArray(tmp, l);
+                c10.intoArray(tmp, 2 * l);
+                c11.intoArray(tmp, 3 * l);
+                c20.intoArray(tmp, 4 * l);
+                c21.intoArray(tmp, 5 * l);
+                c30.intoArray(tmp, 6 * l);
+                c31.intoArray(tmp, 7 * l);
+                for (int r = 0; r < 4; r++) {
+                    System.arraycopy(tmp, 2 * l * r, y, y0 + r * out, cols);
+                }
+            }
+        }
+    }
+
+    /** Rows {@code [i0, i1)} of a two-vector int panel, one at a time. */
+    private static void intTwo1(int[] x, int i0, int i1, int in, int[] pw, int po, int[] pb, int j0, int[] y, int out,
+            int cols) {
+        int l = I.length();
+        int[] tmp = new int[8 * l];
+        IntVector b0 = IntVector.fromArray(I, pb, j0);
+        IntVector b1 = IntVector.fromArray(I, pb, j0 + l);
+        for (int i = i0; i < i1; i++) {
+            int x0 = i * in;
+            IntVector c0 = b0;
+            IntVector c1 = b1;
+            for (int t = 0, p = po; t < in; t++, p += 2 * l) {
+                IntVector a = IntVector.broadcast(I, x[x0 + t]);
+                c0 = c0.add(IntVector.fromArray(I, pw, p).mul(a));
+                c1 = c1.add(IntVector.fromArray(I, pw, p + l).mul(a));
+            }
+            c0.intoArray(tmp, 0);
+            c1.intoArray(tmp, l);
+            System.arraycopy(tmp, 0, y, i * out + j0, cols);
+        }
+    }
+
+    /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 4) of a one-vector int panel. */
+    private static void intOne4(int[] x, int i0, int i1, int in, int[] pw, int po, int[] pb, int j0, int[] y, int out,
+            int cols) {
+        int l = I.length();
+        int[] tmp = new int[8 * l];
+        IntVector b0 = IntVector.fromArray(I, pb, j0);
+        for (int i = i0; i < i1; i += 4) {
+            int x0 = i * in;
+            int x1 = x0 + in;
+            int x2 = x1 + in;
+            int x3 = x2 + in;
+            IntVector c0 = b0;
+            IntVector c1 = b0;
+            IntVector c2 = b0;
+            IntVector c3 = b0;
+            for (int t = 0, p = po; t < in; t++, p += l) {
+                IntVector w0 = IntVector.fromArray(I, pw, p);
+                c0 = c0.add(w0.mul(IntVector.broadcast(I, x[x0 + t])));
+                c1 = c1.add(w0.mul(IntVector.broadcast(I, x[x1 + t])));
+                c2 = c2.add(w0.mul(IntVector.broadcast(I, x[x2 + t])));
+                c3 = c3.add(w0.mul(IntVector.broadcast(I, x[x3 + t])));
+            }
+            c0.intoArray(tmp, 0);
+            c1.intoArray(tmp, l);
+            c2.intoArray(tmp, 2 * l);
+            c3.intoArray(tmp, 3 * l);
+            int y0 = i * out + j0;
+            for (int r = 0; r < 4; r++) {
+                System.arraycopy(tmp, l * r, y, y0 + r * out, cols);
+            }
+        }
+    }
+
+    /** Rows {@code [i0, i1)} of a one-vector int panel, one at a time. */
+    private static void intOne1(int[] x, int i0, int i1, int in, int[] pw, int po, int[] pb, int j0, int[] y, int out,
+            int cols) {
+        int l = I.length();
+        int[] tmp = new int[8 * l];
+        IntVector b0 = IntVector.fromArray(I, pb, j0);
+        for (int i = i0; i < i1; i++) {
+            int x0 = i * in;
+            IntVector c0 = b0;
+            for (int t = 0, p = po; t < in; t++, p += l) {
+                c0 = c0.add(IntVector.fromArray(I, pw, p).mul(IntVector.broadcast(I, x[x0 + t])));
+            }
+            c0.intoArray(tmp, 0);
+            System.arraycopy(tmp, 0, y, i * out + j0, cols);
+        }
+    }
+
+    /**
+     * {@code y[yo + o p + q] = ((s0 + s1) + (s2 + s3)) + b[o]} for every output channel {@code o < out} and position
+     * {@code q < p}, where {@code s_r} sums {@code w[o, t] * col[t, q]} (each product rounded, then added) over the
+     * taps {@code t = r, r + 4, ...} below {@code k - k mod 4} in increasing order, and the last {@code k mod 4} taps
+     * go to {@code s0}: the order of the dot-product kernel the convolution used before, so the same bits. {@code w}
+     * is {@code [out, k]}, {@code col} {@code [k, p]} (positions contiguous). Vectors run over positions, two output
+     * channels at a time; positions past the last whole vector take the scalar loop.
+     */
+    static void convPositions(float[] w, int out, int k, float[] col, int p, float[] b, float[] y, int yo) {
+        int l = C.length();
+        int pv = p - p % l;
+        int o = 0;
+        for (; o + 2 <= out; o += 2) {
+            convTwo(w, o, k, col, p, pv, b, y, yo);
+        }
+        for (; o < out; o++) {
+            convOne(w, o, k, col, p, pv, b, y, yo);
+        }
+        for (o = 0; o < out; o++) {
+            int wo = o * k;
+            for (int q = pv; q < p; q++) {
+                float s0 = 0;
+                float s1 = 0;
+                float s2 = 0;
+                float s3 = 0;
+                int t = 0;
+                for (; t + 3 < k; t += 4) {
+                    s0 += w[wo + t] * col[t * p + q];
+                    s1 += w[wo + t + 1] * col[(t + 1) * p + q];
+                    s2 += w[wo + t + 2] * col[(t + 2) * p + q];
+                    s3 += w[wo + t + 3] * col[(t + 3) * p + q];
+                }
+                for (; t < k; t++) {
+                    s0 += w[wo + t] * col[t * p + q];
+                }
+                float c = (s0 + s1) + (s2 + s3);
+                y[yo + o * p + q] = c + b[o];
+            }
+        }
+    }
+
+    /** Output channels {@code o} and {@code o + 1} of {@link #convPositions}, positions below {@code pv}. */
+    private static void convTwo(float[] w, int o, int k, float[] col, int p, int pv, float[] b, float[] y, int yo) {
+        int l = C.length();
+        int wa = o * k;
+        int wb = wa + k;
+        FloatVector ba = FloatVector.broadcast(C, b[o]);
+        FloatVector bb = FloatVector.broadcast(C, b[o + 1]);
+        for (int q = 0; q < pv; q += l) {
+            FloatVector a0 = FloatVector.zero(C);
+            FloatVector a1 = a0;
+            FloatVector a2 = a0;
+            FloatVector a3 = a0;
+            FloatVector c0 = a0;
+            FloatVector c1 = a0;
+            FloatVector c2 = a0;
+            FloatVector c3 = a0;
+            int t = 0;
+            for (; t + 3 < k; t += 4) {
+                FloatVector x0 = FloatVector.fromArray(C, col, t * p + q);
+                FloatVector x1 = FloatVector.fromArray(C, col, (t + 1) * p + q);
+                FloatVector x2 = FloatVector.fromArray(C, col, (t + 2) * p + q);
+                FloatVector x3 = FloatVector.fromArray(C, col, (t + 3) * p + q);
+                a0 = a0.add(x0.mul(w[wa + t]));
+                a1 = a1.add(x1.mul(w[wa + t + 1]));
+                a2 = a2.add(x2.mul(w[wa + t + 2]));
+                a3 = a3.add(x3.mul(w[wa + t + 3]));
+                c0 = c0.add(x0.mul(w[wb + t]));
+                c1 = c1.add(x1.mul(w[wb + t + 1]));
+                c2 = c2.add(x2.mul(w[wb + t + 2]));
+                c3 = c3.add(x3.mul(w[wb + t + 3]));
+            }
+            for (; t < k; t++) {
+                FloatVector x0 = FloatVector.fromArray(C, col, t * p + q);
+                a0 = a0.add(x0.mul(w[wa + t]));
+                c0 = c0.add(x0.mul(w[wb + t]));
+            }
+            a0.add(a1).add(a2.add(a3)).add(ba).intoArray(y, yo + o * p + q);
+            c0.add(c1).add(c2.add(c3)).add(bb).intoArray(y, yo + (o + 1) * p + q);
+        }
+    }
+
+    /** Output channel {@code o} of {@link #convPositions}, positions below {@code pv}. */
+    private static void convOne(float[] w, int o, int k, float[] col, int p, int pv, float[] b, float[] y, int yo) {
+        int l = C.length();
+        int wa = o * k;
+        FloatVector ba = FloatVector.broadcast(C, b[o]);
+        for (int q = 0; q < pv; q += l) {
+            FloatVector a0 = FloatVector.zero(C);
+            FloatVector a1 = a0;
+            FloatVector a2 = a0;
+            FloatVector a3 = a0;
+            int t = 0;
+            for (; t + 3 < k; t += 4) {
+                a0 = a0.add(FloatVector.fromArray(C, col, t * p + q).mul(w[wa + t]));
+                a1 = a1.add(FloatVector.fromArray(C, col, (t + 1) * p + q).mul(w[wa + t + 1]));
+                a2 = a2.add(FloatVector.fromArray(C, col, (t + 2) * p + q).mul(w[wa + t + 2]));
+                a3 = a3.add(FloatVector.fromArray(C, col, (t + 3) * p + q).mul(w[wa + t + 3]));
+            }
+            for (; t < k; t++) {
+                a0 = a0.add(FloatVector.fromArray(C, col, t * p + q).mul(w[wa + t]));
+            }
+            a0.add(a1).add(a2.add(a3)).add(ba).intoArray(y, yo + o * p + q);
+        }
+    }
+}

@@ -1,0 +1,176 @@
+package dev.rungbook.internal;
+
+import static org.junit.jupiter.api.Assertions.assertArrayEquals;
+import static org.junit.jupiter.api.Assertions.assertEquals;
+import static org.junit.jupiter.api.Assertions.assertThrows;
+import static org.junit.jupiter.api.Assertions.assertTrue;
+
+import java.util.SplittableRandom;
+import org.junit.jupiter.api.Test;
+
+/**
+ * The packed forward kernels (Vector API panels, present in the test JVM, and the plain loops) against the
+ * straightforward one-output-at-a-time loops: float bit for bit (the summation order is the same), int32 exactly; and
+ * the reference loops against independent arithmetic (double sums within a rounding bound, long sums exactly).
+ * Shapes 1, 3, 17, 33 and 513 take every remainder path: the row blocks of four, one- and two-vector panels and
+ * partly filled panels.
+ */
+class ForwardKernelsTest {
+    private static final int[] SIZES = {1, 3, 17, 33, 513};
+
+    private static float[] floats(SplittableRandom r, int n) {
+        float[] v = new float[n];
+        for (int i = 0; i < n; i++) {
+            int k = r.nextInt(40);
+            v[i] = k == 0 ? -0.0f : k == 1 ? 0.0f : (float) (r.nextGaussian() * Math.exp(r.nextDouble(-4, 4)));
+        }
+        return v;
+    }
+
+    private static int[] ints(SplittableRandom r, int n, int lo, int hi) {
+        int[] v = new int[n];
+        for (int i = 0; i < n; i++) {
+            v[i] = r.nextInt(lo, hi + 1);
+        }
+        return v;
+    }
+
+    @Test
+    void theVectorPathIsPresentInTheTestJvm() {
+        assertTrue(ForwardKernels.vectorised(), "surefire runs with --add-modules jdk.incubator.vector");
+    }
+
+    @Test
+    void floatPanelsEqualTheReferenceLoopBitForBit() {
+        SplittableRandom r = new SplittableRandom(11);
+        for (int n : SIZES) {
+            for (int in : SIZES) {
+                for (int out : SIZES) {
+                    if ((long) n * in * out > 3_000_000) {
+                        continue; // 513^3 adds nothing the other shapes do not cover
+                    }
+                    float[] x = floats(r, n * in);
+                    float[] w = floats(r, out * in);
+                    float[] b = floats(r, out);
+                    float[] want = ForwardKernels.referenceAffine(x, n, w, b, in, out);
+                    ForwardKernels.FloatPanels p = ForwardKernels.FloatPanels.of(w, b, out, in);
+                    String shape = n + " x " + in + " -> " + out;
+                    // assertArrayEquals on floats compares Float.floatToIntBits: -0.0 and 0.0 differ
+                    assertArrayEquals(want, p.affine(x, n, false, true), "vector panels, " + shape);
+                    assertArrayEquals(want, p.affine(x, n, false, false), "plain panels, " + shape);
+                    assertArrayEquals(want, p.affine(x, n), "default path, " + shape);
+                    float[] relu = want.clone();
+                    for (int i = 0; i < relu.length; i++) {
+                        relu[i] = Math.max(0f, relu[i]);
+                    }
+                    assertArrayEquals(relu, p.affine(x, n, true, true), "vector panels with ReLU, " + shape);
+                    assertArrayEquals(relu, p.affine(x, n, true, false), "plain panels with ReLU, " + shape);
+                }
+            }
+        }
+    }
+
+    @Test
+    void theFloatReferenceIsTheProductWithinRounding() {
+        // Source: the same sums in double precision; each of the `in` fused steps rounds once to float, so the error
+        // is below in * 2^-24 * sum |terms| (a standard bound, from memory).
+        SplittableRandom r = new SplittableRandom(12);
+        int n = 17;
+        int in = 33;
+        int out = 3;
+        float[] x = floats(r, n * in);
+        float[] w = floats(r, out * in);
+        float[] b = floats(r, out);
+        float[] y = ForwardKernels.referenceAffine(x, n, w, b, in, out);
+        for (int i = 0; i < n; i++) {
+            for (int o = 0; o < out; o++) {
+                double s = b[o];
+                double mag = Math.abs(b[o]);
+                for (int t = 0; t < in; t++) {
+                    s += (double) x[i * in + t] * w[o * in + t];
+                    mag += Math.abs((double) x[i * in + t] * w[o * in + t]);
+                }
+                assertEquals(s, y[i * out + o], (in + 1) * 0x1p-24 * mag, "y[" + i + "," + o + "]");
+            }
+        }
+    }
+
+    @Test
+    void intPanelsEqualTheReferenceLoopExactly() {
+        SplittableRandom r = new SplittableRandom(13);
+        for (int n : SIZES) {
+            for (int in : SIZES) {
+                for (int out : SIZES) {
+                    if ((long) n * in * out > 3_000_000) {
+                        continue;
+                    }
+                    int[] x = ints(r, n * in, 0, 255);
+                    int[] w = ints(r, out * in, -127, 127);
+                    int[] init = ints(r, out, -100_000, 100_000);
+                    int[] want = ForwardKernels.referenceAccumulate(x, n, w, init, in, out);
+                    ForwardKernels.IntPanels p = ForwardKernels.IntPanels.of(w, out, in);
+                    String shape = n + " x " + in + " -> " + out;
+                    assertArrayEquals(want, p.accumulate(x, n, init, true), "vector panels, " + shape);
+                    assertArrayEquals(want, p.accumulate(x, n, init, false), "plain panels, " + shape);
+                    assertArrayEquals(want, p.accumulate(x, n, init), "default path, " + shape);
+                }
+            }
+        }
+    }
+
+    @Test
+    void intReferenceIsTheLongSumAndWrapsLikeJava() {
+        // Source: the sums in 64-bit arithmetic; Java's int32 result is the low 32 bits of the exact sum (JLS 15.17.1
+        // and 15.18.2), so huge values check the wrap-around as well.
+        SplittableRandom r = new SplittableRandom(14);
+        int n = 5;
+        int in = 17;
+        int out = 33;
+        for (int[] range : new int[][] {{-255, 255}, {Integer.MIN_VALUE / 2, Integer.MAX_VALUE / 2}}) {
+            int[] x = ints(r, n * in, range[0], range[1]);
+            int[] w = ints(r, out * in, range[0], range[1]);
+            int[] init = ints(r, out, range[0], range[1]);
+            int[] y = ForwardKernels.IntPanels.of(w, out, in).accumulate(x, n, init);
+            assertArrayEquals(ForwardKernels.referenceAccumulate(x, n, w, init, in, out), y);
+            for (int i = 0; i < n; i++) {
+                for (int o = 0; o < out; o++) {
+                    long s = init[o];
+                    for (int t = 0; t < in; t++) {
+                        s += (long) x[i * in + t] * w[o * in + t];
+                    }
+                    assertEquals((int) s, y[i * out + o], "acc[" + i + "," + o + "]");
+                }
+            }
+        }
+    }
+
+    @Test
+    void nonFiniteValuesPropagateAsInTheReference() {
+        float[] x = {1f, Float.NaN, 2f, 3f, Float.POSITIVE_INFINITY, 0f};
+        float[] w = {1f, 1f, 1f, 0f, 1f, 2f};
+        float[] b = {-0.0f, 1f};
+        float[] want = ForwardKernels.referenceAffine(x, 2, w, b, 3, 2);
+        assertArrayEquals(want, ForwardKernels.FloatPanels.of(w, b, 2, 3).affine(x, 2));
+        assertTrue(Float.isNaN(want[0]) && Float.isNaN(want[1]), "NaN input of sample 0 reaches both outputs");
+        assertEquals(Float.POSITIVE_INFINITY, want[2], "infinite input of sample 1, weight 1");
+        // ReLU: Math.max(0, NaN) is NaN and Math.max(0, -0.0) is 0.0; the fused kernels must agree bit for bit
+        float[] z = {0f, 0f, 0f, 0f}; // fma(0, -1, -0.0) = -0.0 + -0.0 = -0.0
+        float[] zb = {-0.0f, -0.0f};
+        ForwardKernels.FloatPanels pz = ForwardKernels.FloatPanels.of(new float[] {-1f, -1f, 1f, 1f}, zb, 2, 2);
+        float[] pre = ForwardKernels.referenceAffine(z, 2, new float[] {-1f, -1f, 1f, 1f}, zb, 2, 2);
+        assertEquals(Float.floatToIntBits(-0.0f), Float.floatToIntBits(pre[0]), "a -0.0 output before the ReLU");
+        assertArrayEquals(new float[] {0f, 0f, 0f, 0f}, pz.affineRelu(z, 2));
+        float[] nanRelu = ForwardKernels.FloatPanels.of(w, b, 2, 3).affineRelu(x, 2);
+        assertTrue(Float.isNaN(nanRelu[0]) && Float.isNaN(nanRelu[1]), "NaN passes the ReLU");
+    }
+
+    @Test
+    void badShapesAreNamed() {
+        IllegalArgumentException e = assertThrows(IllegalArgumentException.class,
+                () -> ForwardKernels.FloatPanels.of(new float[5], new float[2], 2, 3));
+        assertTrue(e.getMessage().contains("weight [2, 3] needs 6 values, got 5"), e.getMessage());
+        ForwardKernels.IntPanels p = ForwardKernels.IntPanels.of(new int[6], 2, 3);
+        e = assertThrows(IllegalArgumentException.class, () -> p.accumulate(new int[5], 2, new int[2]));
+        assertTrue(e.getMessage().contains("input [2, 3] needs 6 values, got 5"), e.getMessage());
+    }
+}

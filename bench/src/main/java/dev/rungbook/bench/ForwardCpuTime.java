@@ -1,0 +1,240 @@
+package dev.rungbook.bench;
+
+import java.io.IOException;
+import java.lang.management.ManagementFactory;
+import java.lang.management.ThreadMXBean;
+import java.net.URL;
+import java.net.URLClassLoader;
+import java.nio.charset.StandardCharsets;
+import java.nio.file.Files;
+import java.nio.file.Path;
+import java.nio.file.StandardCopyOption;
+import java.util.ArrayList;
+import java.util.Arrays;
+import java.util.LinkedHashMap;
+import java.util.List;
+import java.util.Locale;
+import java.util.Map;
+import java.util.function.DoubleSupplier;
+import java.util.function.Function;
+
+/**
+ * Forward passes of the sample networks ({@link ForwardSubject}) and the machine's multiply-add throughput, timed by
+ * the benchmark thread's CPU time (and the wall clock) in one JVM, interleaved: each repetition runs every case once
+ * in turn, the first {@code WARM} repetitions are dropped, and the median and minimum of the rest are reported.
+ * Everything runs on the one benchmark thread: the forward passes are single-threaded, and so are the peaks it
+ * measures (run it with {@code OPENBLAS_NUM_THREADS=1} so that the native sgemm is too; its worker threads' CPU time
+ * would not be counted otherwise).
+ *
+ * <p>With {@code --before OLD.jar} the same forward passes of an older library version run in the same JVM: a class
+ * loader takes every {@code dev.rungbook} class from {@code OLD.jar} (then from the benchmark jar, for
+ * {@link ForwardSubject}) and everything else from the application class path. Cases of that version are suffixed
+ * {@code Before}.
+ *
+ * <p>Peaks: {@code peakJavaFma} and {@code peakJavaInt32MulAdd} are plain loops over arrays in the level-1 cache
+ * (each multiply-add also loads two values and stores one: what the JIT makes of a streaming loop);
+ * {@code peakVectorFma} and {@code peakVectorInt32MulAdd} ({@link VectorPeaks}, with
+ * {@code --add-modules jdk.incubator.vector}) keep their accumulators in registers, the arithmetic's real ceiling;
+ * {@code peakSgemm} is the library's sgemm (native BLAS when it loads) on 512 x 512 x 512.
+ *
+ * <p>Output in JMH's JSON layout (score = median thread-CPU ms per call, mode {@code "cpu-time median"}), with the
+ * minimum, the wall-clock median, the multiply-adds per call and the load average before and after, so that
+ * {@code bench/summarize.py} reads it.
+ *
+ * <p>Usage: {@code java [--add-modules jdk.incubator.vector] -cp bench/target/benchmarks.jar
+ * dev.rungbook.bench.ForwardCpuTime OUT.json [--before OLD.jar] [--reps N]}.
+ */
+public final class ForwardCpuTime {
+    private static final int WARM = 20;
+    private static final int LOOP = 1024;
+    private static final int LOOP_REPS = 4096;
+
+    private ForwardCpuTime() {
+    }
+
+    private record Case(String name, long macs, DoubleSupplier body) {
+    }
+
+    /** Loads {@code dev.rungbook} classes from its own URLs first, everything else from the parent. */
+    private static final class ChildFirst extends URLClassLoader {
+        ChildFirst(URL[] urls, ClassLoader parent) {
+            super(urls, parent);
+        }
+
+        @Override
+        protected Class<?> loadClass(String name, boolean resolve) throws ClassNotFoundException {
+            if (!name.startsWith("dev.rungbook.")) {
+                return super.loadClass(name, resolve);
+            }
+            synchronized (getClassLoadingLock(name)) {
+                Class<?> c = findLoadedClass(name);
+                if (c == null) {
+                    c = findClass(name);
+                }
+                if (resolve) {
+                    resolveClass(c);
+                }
+                return c;
+            }
+        }
+    }
+
+    private static Path samples() {
+        for (String p : new String[] {"sample-tensors", "../sample-tensors"}) {
+            if (Files.isDirectory(Path.of(p))) {
+                return Path.of(p).toAbsolutePath();
+            }
+        }
+        throw new IllegalStateException("sample-tensors not found from " + Path.of("").toAbsolutePath());
+    }
+
+    private static String load() {
+        try {
+            return Files.readString(Path.of("/proc/loadavg")).strip();
+        } catch (IOException e) {
+            return "n/a";
+        }
+    }
+
+    private static boolean vectorModule() {
+        return ModuleLayer.boot().findModule("jdk.incubator.vector").isPresent();
+    }
+
+    @SuppressWarnings("unchecked")
+    private static void addSubject(List<Case> cases, Function<String, DoubleSupplier> subject, Map<String, Long> macs,
+            String suffix) {
+        for (Map.Entry<String, Long> e : macs.entrySet()) {
+            cases.add(new Case(e.getKey() + suffix, e.getValue(), subject.apply(e.getKey())));
+        }
+    }
+
+    @SuppressWarnings("unchecked")
+    public static void main(String[] args) throws Exception {
+        if (args.length < 1) {
+            System.err.println("usage: ForwardCpuTime OUT.json [--before OLD.jar] [--reps N]");
+            System.exit(2);
+        }
+        Path outFile = Path.of(args[0]);
+        Path before = null;
+        int reps = 61;
+        for (int i = 1; i < args.length; i++) {
+            if (args[i].equals("--before")) {
+                before = Path.of(args[++i]);
+            } else if (args[i].equals("--reps")) {
+                reps = Integer.parseInt(args[++i]);
+            } else {
+                throw new IllegalArgumentException("unknown argument " + args[i]);
+            }
+        }
+        String loadStart = load();
+        Path samples = samples();
+        List<Case> cases = new ArrayList<>();
+        ForwardSubject now = new ForwardSubject(samples);
+        addSubject(cases, now, now.macs(), "");
+        if (before != null) {
+            if (!Files.isRegularFile(before)) {
+                throw new IllegalArgumentException("--before: no jar at " + before.toAbsolutePath());
+            }
+            URL bench = ForwardCpuTime.class.getProtectionDomain().getCodeSource().getLocation();
+            ClassLoader old = new ChildFirst(new URL[] {before.toUri().toURL(), bench},
+                    ForwardCpuTime.class.getClassLoader());
+            Object subject = old.loadClass(ForwardSubject.class.getName()).getConstructor(Path.class)
+                    .newInstance(samples);
+            if (subject.getClass().getClassLoader() != old) {
+                throw new IllegalStateException("the older library's subject was not loaded from " + before);
+            }
+            Map<String, Long> macs = (Map<String, Long>) subject.getClass().getMethod("macs").invoke(subject);
+            addSubject(cases, (Function<String, DoubleSupplier>) subject, macs, "Before");
+        }
+        float[] fx = new float[LOOP];
+        float[] fy = new float[LOOP];
+        int[] ix = new int[LOOP];
+        int[] iy = new int[LOOP];
+        for (int i = 0; i < LOOP; i++) {
+            fx[i] = 1e-6f * (i % 13);
+            ix[i] = i % 13 - 6;
+        }
+        float[] fm = {1.0000001f};
+        int[] im = {3};
+        long loopMacs = (long) LOOP * LOOP_REPS;
+        cases.add(new Case("peakJavaFma", loopMacs, () -> {
+            float a = fm[0];
+            for (int r = 0; r < LOOP_REPS; r++) {
+                for (int i = 0; i < LOOP; i++) {
+                    fy[i] = Math.fma(fx[i], a, fy[i]);
+                }
+            }
+            return fy[7];
+        }));
+        cases.add(new Case("peakJavaInt32MulAdd", loopMacs, () -> {
+            int a = im[0]; // an array element, so that the JIT cannot turn the product into shifts
+            for (int r = 0; r < LOOP_REPS; r++) {
+                for (int i = 0; i < LOOP; i++) {
+                    iy[i] += ix[i] * a;
+                }
+            }
+            return iy[7];
+        }));
+        if (vectorModule()) {
+            cases.add(new Case("peakVectorFma", VectorPeaks.floatMacs(), () -> VectorPeaks.floatFma(fx, fm[0])));
+            cases.add(new Case("peakVectorInt32MulAdd", VectorPeaks.intMacs(),
+                    () -> VectorPeaks.intMulAdd(ix, im[0])));
+        }
+        int g = 512;
+        float[] ga = new float[g * g];
+        float[] gb = new float[g * g];
+        float[] gc = new float[g * g];
+        for (int i = 0; i < ga.length; i++) {
+            ga[i] = (i % 7) * 0.01f;
+            gb[i] = (i % 5) * 0.02f;
+        }
+        dev.rungbook.internal.LinearAlgebra la = dev.rungbook.internal.LinearAlgebra.instance();
+        cases.add(new Case("peakSgemm", (long) g * g * g, () -> {
+            la.sgemm(false, false, g, g, g, ga, gb, gc);
+            return gc[0];
+        }));
+
+        ThreadMXBean bean = ManagementFactory.getThreadMXBean();
+        double[][] cpu = new double[cases.size()][reps];
+        double[][] wall = new double[cases.size()][reps];
+        double sink = 0;
+        for (int rep = 0; rep < WARM + reps; rep++) {
+            for (int c = 0; c < cases.size(); c++) {
+                long w0 = System.nanoTime();
+                long t0 = bean.getCurrentThreadCpuTime();
+                sink += cases.get(c).body().getAsDouble();
+                long t1 = bean.getCurrentThreadCpuTime();
+                long w1 = System.nanoTime();
+                if (rep >= WARM) {
+                    cpu[c][rep - WARM] = (t1 - t0) / 1e6;
+                    wall[c][rep - WARM] = (w1 - w0) / 1e6;
+                }
+            }
+        }
+        String loadEnd = load();
+        String env = String.valueOf(System.getenv("OPENBLAS_NUM_THREADS"));
+        List<String> rows = new ArrayList<>();
+        for (int c = 0; c < cases.size(); c++) {
+            double[] t = cpu[c].clone();
+            double[] w = wall[c].clone();
+            Arrays.sort(t);
+            Arrays.sort(w);
+            Case k = cases.get(c);
+            double median = t[t.length / 2];
+            System.out.printf(Locale.ROOT, "%-28s cpu median %8.3f ms, min %8.3f; wall median %8.3f  %7.2f G op/s%n",
+                    k.name(), median, t[0], w[w.length / 2], 2.0 * k.macs() / median / 1e6);
+            rows.add(String.format(Locale.ROOT, "{\"benchmark\": \"dev.rungbook.bench.ForwardCpuTime.%s\", "
+                    + "\"mode\": \"cpu-time median\", \"threads\": 1, \"primaryMetric\": {\"score\": %.4f, "
+                    + "\"scoreUnit\": \"ms/op\", \"min\": %.4f, \"wallMedian\": %.4f, \"repetitions\": %d}, "
+                    + "\"macs\": %d, \"loadStart\": \"%s\", \"loadEnd\": \"%s\", \"vectorModule\": %b, "
+                    + "\"openblasThreads\": \"%s\", \"linearAlgebra\": \"%s\", \"before\": \"%s\"}", k.name(), median,
+                    t[0], w[w.length / 2], reps, k.macs(), loadStart, loadEnd, vectorModule(), env,
+                    la.backend(), before == null ? "" : before.getFileName()));
+        }
+        System.out.println("(checksum " + sink + "; load " + loadStart + " -> " + loadEnd + "; vector module "
+                + vectorModule() + "; OPENBLAS_NUM_THREADS=" + env + "; " + la.backend() + ")");
+        Path tmp = outFile.resolveSibling(outFile.getFileName() + ".tmp");
+        Files.writeString(tmp, "[\n" + String.join(",\n", rows) + "\n]\n", StandardCharsets.UTF_8);
+        Files.move(tmp, outFile, StandardCopyOption.REPLACE_EXISTING, StandardCopyOption.ATOMIC_MOVE);
+    }
+}
