@@ -206,9 +206,21 @@ if st:
     lines += ["", f"Four specs take **{four / one:.2f}x** the time of one (target: at most 2.5x); both finish under "
               f"-Xmx1g (target: peak heap under 1 GiB).", "",
               f"Run at {mib} MiB ({int(mib) // 32} tensors of 4096 x 4096) instead of the issue's 2 GiB unless "
-              "RUNGBOOK_STUDY_MIB=2048 is set: the work per tensor is the same. `Study` reads each tensor once and runs "
-              "its specs in parallel on the cores; the ratio is set by the per-spec cost (int8 per channel takes the "
-              "fused kernel, per-group int4, NF4 and FP8 the general per-segment path, and every spec pays for its "
-              "own error report with the KL histograms). The \"peak heap in use\" counts garbage not yet collected: "
-              "the JVM fills the 1 GiB it is given; the same study also finished under -Xmx400m (by hand).", ""]
+              "RUNGBOOK_STUDY_MIB=2048 is set: the work per tensor is the same. `Study` reads each tensor once, counts "
+              "its values once for the KL histograms of all its specs (`ErrorReport.reference`), and feeds the specs "
+              "to the cores from one queue of (tensor, spec) jobs over at most two tensors at a time, so no core waits "
+              "at the end of a tensor; one spec runs on one thread. The ratio is set by the per-spec cost of the "
+              "three specs beyond int8 (per-group int4, NF4 and FP8 quantize kernels, then each spec's error sums and "
+              "histogram of its own dequantized values). The \"peak heap in use\" counts garbage not yet collected: "
+              "the JVM fills the 1 GiB it is given.", ""]
+sc = load("StudyCpuTime.json")
+if sc:
+    one, four = sc["oneSpec"], sc["fourSpecs"]
+    lines += [f"### The same studies by process CPU time ({one['params']['mib']} MiB, interleaved, medians)", "",
+              "| study | process CPU ms | wall ms |", "| --- | ---: | ---: |",
+              f"| 1 spec | {ms(one):.0f} | {one['wallMedianMs']:.0f} |",
+              f"| 4 specs | {ms(four):.0f} | {four['wallMedianMs']:.0f} |", "",
+              f"CPU 4/1 = **{ms(four) / ms(one):.2f}x**; on 2 cores kept busy the wall-clock ratio is about half of "
+              f"that, {ms(four) / ms(one) / 2:.2f}x. Load average {one['loadAverageStart']:.1f} at the start, "
+              f"{one['loadAverageEnd']:.1f} at the end (the wall clock is only meaningful on a quiet machine).", ""]
 print("\n".join(lines))
