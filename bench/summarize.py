@@ -255,12 +255,45 @@ if st:
                      ("fourSpecs", "4 specs (int8, int4 per-group(1,128), nf4, fp8-e4m3 per-channel(0))")]:
         h = heap.get(k, {}).get("peak_heap_mib")
         lines.append(f"| {label} | {ms(st[k]):.1f} | {'' if h is None else f'{h:.0f}'} |")
+    loads = [heap[k][x] for k in heap for x in ("load_average_start", "load_average_end") if x in heap[k]]
+    load_note = (f" Load average during the runs: {min(loads):.1f} to {max(loads):.1f} on {os.cpu_count()} cores "
+                 "(wall-clock figures on a loaded machine overstate both times and the ratio; see the CPU-time table "
+                 "below)." if loads else "")
     lines += ["", f"Four specs take **{four / one:.2f}x** the time of one (target: at most 2.5x); both finish under "
-              f"-Xmx1g (target: peak heap under 1 GiB).", "",
+              f"-Xmx1g (target: peak heap under 1 GiB).{load_note}", "",
               f"Run at {mib} MiB ({int(mib) // 32} tensors of 4096 x 4096) instead of the issue's 2 GiB unless "
-              "RUNGBOOK_STUDY_MIB=2048 is set: the work per tensor is the same. `Study` reads each tensor once and runs "
-              "its specs in parallel on the cores; the ratio is set by the per-spec cost (int8 per channel takes the "
-              "fused kernel, per-group int4, NF4 and FP8 the general per-segment path, and every spec pays for its "
-              "own error report with the KL histograms). The \"peak heap in use\" counts garbage not yet collected: "
-              "the JVM fills the 1 GiB it is given; the same study also finished under -Xmx400m (by hand).", ""]
+              "RUNGBOOK_STUDY_MIB=2048 is set: the work per tensor is the same. `Study` reads each tensor once, counts "
+              "its values once for the KL histograms of all its specs (`ErrorReport.reference`), and feeds the specs "
+              "to the cores from one queue of (tensor, spec) jobs over at most two tensors at a time, so no core waits "
+              "at the end of a tensor; one spec runs on one thread. The ratio is set by the per-spec cost of the "
+              "three specs beyond int8 (per-group int4, NF4 and FP8 quantize kernels, then each spec's error sums and "
+              "histogram of its own dequantized values). The \"peak heap in use\" counts garbage not yet collected: "
+              "the JVM fills the 1 GiB it is given.", ""]
+sc = load("StudyCpuTime.json")
+if sc:
+    one, four = sc["oneSpec"], sc["fourSpecs"]
+    lines += [f"### The same studies by process CPU time ({one['params']['mib']} MiB, interleaved, medians)", "",
+              "| study | process CPU ms | wall ms |", "| --- | ---: | ---: |",
+              f"| 1 spec | {ms(one):.0f} | {one['wallMedianMs']:.0f} |",
+              f"| 4 specs | {ms(four):.0f} | {four['wallMedianMs']:.0f} |", "",
+              f"CPU 4/1 = **{ms(four) / ms(one):.2f}x**; on 2 cores kept busy the wall-clock ratio is about half of "
+              f"that, {ms(four) / ms(one) / 2:.2f}x. Load average {one['loadAverageStart']:.1f} at the start, "
+              f"{one['loadAverageEnd']:.1f} at the end (the wall clock is only meaningful on a quiet machine).", ""]
+ba_path = os.path.join(out, "StudyCpuTime-before-after.json")
+if os.path.exists(ba_path):
+    with open(ba_path) as f:
+        ba = json.load(f)
+    def mean_of(lib, name):
+        v = [r["primaryMetric"]["score"] for r in ba if r["library"] == lib and r["benchmark"].endswith(name)]
+        return sum(v) / len(v)
+    b1, b4, a1, a4 = (mean_of("before", "oneSpec"), mean_of("before", "fourSpecs"), mean_of("after", "oneSpec"),
+                      mean_of("after", "fourSpecs"))
+    loads = [r[k] for r in ba for k in ("loadAverageStart", "loadAverageEnd")]
+    lines += ["### Before and after the shared reference counts and the job queue (one session, process CPU ms)", "",
+              "JVMs alternating before, after, before, after (StudyCpuTime, 3 rounds each after a warm-up; the mean "
+              f"of the two JVMs' medians). Load average {min(loads):.1f} to {max(loads):.1f}.", "",
+              "| study | before | after | after / before |", "| --- | ---: | ---: | ---: |",
+              f"| 1 spec | {b1:.0f} | {a1:.0f} | {a1 / b1:.2f} |",
+              f"| 4 specs | {b4:.0f} | {a4:.0f} | {a4 / b4:.2f} |",
+              f"| CPU ratio 4/1 | {b4 / b1:.2f} | {a4 / a1:.2f} | |", ""]
 print("\n".join(lines))

@@ -1,6 +1,5 @@
 package dev.rungbook.metrics;
 
-import dev.rungbook.internal.Lanes;
 import dev.rungbook.internal.TensorAccess;
 import dev.rungbook.tensor.Tensor;
 import dev.rungbook.tensor.TensorView;
@@ -30,9 +29,11 @@ import tech.tablesaw.api.Table;
  *       distribution ({@code Q' = (1 - 1e-6) Q + 1e-6 / bins}) so that the value is finite; exactly 0 when the two
  *       histograms are identical.</li>
  * </ul>
- * No metric is ever NaN. Immutable. The sums behind all metrics but the KL divergence are taken in one pass when the
- * report is made; the two histograms of the KL divergence only when {@link #klDivergence()} (or {@link #values()},
- * {@link #toTable()}) first asks for it, and then kept.
+ * No metric is ever NaN. Immutable. The sums behind all metrics but the KL divergence, and the ranges of both
+ * tensors, are taken in one pass when the report is made; the two histograms of the KL divergence only when
+ * {@link #klDivergence()} (or {@link #values()}, {@link #toTable()}) first asks for it, in one more pass (the bin
+ * index needs no clamping, see {@code count}), and then kept. Several approximations of one tensor can share its
+ * histogram work through {@link #reference(Tensor)} and {@link #of(Reference, Tensor)}, with the same values.
  */
 public final class ErrorReport {
     /** The number of histogram bins of {@link #klDivergence()}. */
@@ -44,14 +45,18 @@ public final class ErrorReport {
     private final Tensor approximation;
     private final int channelAxis;
     private final Sums sums;
+    /** The reference's shared value counts, or null: then the KL histograms take one pass over both tensors. */
+    private final Reference shared;
     /** The KL divergence once computed; NaN (which the divergence never is) until then. */
     private volatile double kl;
 
-    private ErrorReport(Tensor reference, Tensor approximation, int channelAxis, Sums sums, double kl) {
+    private ErrorReport(Tensor reference, Tensor approximation, int channelAxis, Sums sums, Reference shared,
+            double kl) {
         this.reference = reference;
         this.approximation = approximation;
         this.channelAxis = channelAxis;
         this.sums = sums;
+        this.shared = shared;
         this.kl = kl;
     }
 
@@ -62,6 +67,22 @@ public final class ErrorReport {
      */
     public static ErrorReport of(Tensor reference, Tensor approximation) {
         Objects.requireNonNull(reference, "reference");
+        return of(reference, approximation, null);
+    }
+
+    /**
+     * The error of {@code approximation} against the tensor of {@code reference}: the same report, value for value,
+     * as {@link #of(Tensor, Tensor)}, but the KL divergence's histogram of the reference comes from the value counts
+     * that {@code reference} holds, so that comparing many approximations of one tensor counts its values once.
+     *
+     * @throws IllegalArgumentException if the shapes differ (both named) or a tensor holds NaN/infinity
+     */
+    public static ErrorReport of(Reference reference, Tensor approximation) {
+        Objects.requireNonNull(reference, "reference");
+        return of(reference.tensor, approximation, reference);
+    }
+
+    private static ErrorReport of(Tensor reference, Tensor approximation, Reference shared) {
         Objects.requireNonNull(approximation, "approximation");
         if (!Arrays.equals(reference.shape(), approximation.shape())) {
             throw new IllegalArgumentException("cannot compare " + reference.label() + " of shape "
@@ -76,7 +97,80 @@ public final class ErrorReport {
             checkFinite(reference, x);
             checkFinite(approximation, y);
         }
-        return new ErrorReport(reference, approximation, reference.rank() > 0 ? 0 : -1, s, Double.NaN);
+        return new ErrorReport(reference, approximation, reference.rank() > 0 ? 0 : -1, s, shared, Double.NaN);
+    }
+
+    /**
+     * A tensor prepared as the reference of several error reports ({@link ErrorReport#of(Reference, Tensor)}):
+     * when its values are all bfloat16 numbers (as read from a bf16 checkpoint) it holds how often each of the
+     * 65536 bit patterns occurs, counted in one pass, from which the KL histogram over any range follows without
+     * another pass over the tensor. Other tensors are counted by each report as {@link ErrorReport#of(Tensor,
+     * Tensor)} does. Immutable and safe to share between threads.
+     */
+    public static final class Reference {
+        private final Tensor tensor;
+        /** Occurrences of each bfloat16 pattern (index: the top 16 bits of the float), or null. */
+        private final int[] bf16Counts;
+
+        private Reference(Tensor tensor, int[] bf16Counts) {
+            this.tensor = tensor;
+            this.bf16Counts = bf16Counts;
+        }
+
+        /** The reference tensor. */
+        public Tensor tensor() {
+            return tensor;
+        }
+
+        /** Whether the values were counted per bfloat16 pattern (otherwise each report counts them itself). */
+        public boolean countsValues() {
+            return bf16Counts != null;
+        }
+    }
+
+    /**
+     * Prepares {@code reference} for several reports: one pass over its values (stopped after the first 4096 when
+     * they are not all bfloat16 numbers).
+     */
+    public static Reference reference(Tensor reference) {
+        Objects.requireNonNull(reference, "reference");
+        return new Reference(reference, bf16Counts(TensorAccess.data(reference)));
+    }
+
+    /** Counts of each bfloat16 pattern in {@code x}, or null if some value has nonzero low 16 bits. */
+    static int[] bf16Counts(float[] x) {
+        int n = x.length;
+        int probe = Math.min(n, 4096);
+        int low = 0;
+        for (int i = 0; i < probe; i++) {
+            low |= Float.floatToRawIntBits(x[i]);
+        }
+        if ((low & 0xFFFF) != 0) {
+            return null;
+        }
+        // Two interleaved tables, so that equal neighbouring values do not wait on each other's increments.
+        int[] c = new int[2 << 16];
+        int i = 0;
+        for (; i + 1 < n; i += 2) {
+            int a = Float.floatToRawIntBits(x[i]);
+            int b = Float.floatToRawIntBits(x[i + 1]);
+            low |= a | b;
+            c[a >>> 16]++;
+            c[(1 << 16) + (b >>> 16)]++;
+        }
+        if (i < n) {
+            int a = Float.floatToRawIntBits(x[i]);
+            low |= a;
+            c[a >>> 16]++;
+        }
+        if ((low & 0xFFFF) != 0) {
+            return null;
+        }
+        int[] counts = new int[1 << 16];
+        for (int k = 0; k < counts.length; k++) {
+            counts[k] = c[k] + c[(1 << 16) + k];
+        }
+        return counts;
     }
 
     private static void checkFinite(Tensor t, float[] d) {
@@ -94,14 +188,17 @@ public final class ErrorReport {
             throw new IllegalArgumentException(reference.label() + ": axis " + axis + " is out of range for shape "
                     + Arrays.toString(reference.shape()));
         }
-        return new ErrorReport(reference, approximation, axis, sums, kl);
+        return new ErrorReport(reference, approximation, axis, sums, shared, kl);
     }
 
     /** The KL divergence of the value histograms, computed on first use (two racing callers compute the same). */
     private double kl() {
         double k = kl;
         if (Double.isNaN(k)) {
-            k = klDivergence(TensorAccess.data(reference), TensorAccess.data(approximation), KL_BINS);
+            float[] x = TensorAccess.data(reference);
+            float[] y = TensorAccess.data(approximation);
+            k = klDivergence(x, y, sums.xmin, sums.xmax, sums.ymin, sums.ymax, shared == null ? null
+                    : shared.bf16Counts, KL_BINS);
             kl = k;
         }
         return k;
@@ -116,6 +213,11 @@ public final class ErrorReport {
         double ssx;
         double ssy;
         double dot;
+        /** Smallest and largest values of x and of y (+-Infinity for no values; -0.0 and +0.0 not told apart). */
+        float xmin = Float.POSITIVE_INFINITY;
+        float xmax = Float.NEGATIVE_INFINITY;
+        float ymin = Float.POSITIVE_INFINITY;
+        float ymax = Float.NEGATIVE_INFINITY;
 
         /** One tight pass over both arrays, in local variables. */
         void addAll(float[] x, float[] y) {
@@ -125,9 +227,17 @@ public final class ErrorReport {
             double xx = 0;
             double yy = 0;
             double xy = 0;
+            float xlo = xmin;
+            float xhi = xmax;
+            float ylo = ymin;
+            float yhi = ymax;
             for (int i = 0; i < x.length; i++) {
                 float a = x[i];
                 float b = y[i];
+                xlo = a < xlo ? a : xlo;
+                xhi = a > xhi ? a : xhi;
+                ylo = b < ylo ? b : ylo;
+                yhi = b > yhi ? b : yhi;
                 double e = (double) b - a;
                 e2 += e * e;
                 double ae = Math.abs(e);
@@ -138,6 +248,10 @@ public final class ErrorReport {
                 xy += (double) a * b;
             }
             n += x.length;
+            xmin = xlo;
+            xmax = xhi;
+            ymin = ylo;
+            ymax = yhi;
             sse += e2;
             sae += ea;
             maxAbs = Math.max(maxAbs, em);
@@ -189,14 +303,25 @@ public final class ErrorReport {
      * description). Values must be finite.
      */
     static double klDivergence(float[] x, float[] y, int bins) {
+        Sums s = new Sums();
+        s.addAll(x, y);
+        return klDivergence(x, y, s.xmin, s.xmax, s.ymin, s.ymax, null, bins);
+    }
+
+    /**
+     * {@link #klDivergence(float[], float[], int)} given the ranges of {@code x} and {@code y} (finite values) and,
+     * optionally, the bfloat16 pattern counts of {@code x} ({@link #bf16Counts}), which then stand for {@code x}.
+     */
+    static double klDivergence(float[] x, float[] y, float xmin, float xmax, float ymin, float ymax, int[] xCounts,
+            int bins) {
         if (x.length == 0) {
             return 0;
         }
-        float[] a = Lanes.minMax(x, 0, x.length, Float.POSITIVE_INFINITY, Float.NEGATIVE_INFINITY);
-        float[] b = Lanes.minMax(y, 0, y.length, a[0], a[1]);
-        long[][] pq = histograms(x, y, b[0], b[1], bins);
-        long[] p = pq[0];
-        long[] q = pq[1];
+        double lo = ymin < xmin ? ymin : xmin;
+        double hi = ymax > xmax ? ymax : xmax;
+        double norm = hi > lo ? bins / (hi - lo) : 0;
+        long[] p = xCounts != null ? countPatterns(xCounts, lo, norm, bins) : count(x, lo, norm, bins);
+        long[] q = count(y, lo, norm, bins);
         if (Arrays.equals(p, q)) {
             return 0;
         }
@@ -213,40 +338,51 @@ public final class ErrorReport {
         return Math.max(0, kl);
     }
 
-    /**
-     * Counts of {@code x} and of {@code y} (same length) in {@code bins} equal bins over [lo, hi], in one pass: bin
-     * {@code floor((v - lo) * bins / (hi - lo))}, the top bin closed; everything in bin 0 when {@code hi == lo}. Each
-     * array is counted into two interleaved tables (even and odd indices) that are added at the end, so that runs of
-     * equal bins do not wait on each other's increments.
+    /*
+     * The bin of a value v in [lo, hi] is floor((v - lo) * norm) with norm = bins / (hi - lo) (0 when hi == lo),
+     * the top bin closed. In floating point the index is never negative (v - lo >= 0 for v >= lo; -0.0 gives bin 0)
+     * and at most bins: v - lo rounds to at most d = fl(hi - lo), and d * fl(bins / d) is below bins * (1 + 2^-52),
+     * which rounds below bins + 1. So the counts go to a table of bins + 1 entries with no clamping, and entry
+     * [bins] (values at or just below hi) is added to the top bin at the end: the same counts as clamping each
+     * index, without a compare per value.
      */
-    private static long[][] histograms(float[] x, float[] y, double lo, double hi, int bins) {
-        double norm = hi > lo ? bins / (hi - lo) : 0;
-        int[] hx = new int[2 * bins];
-        int[] hy = new int[2 * bins];
-        int n = x.length;
+
+    /**
+     * Counts of {@code v} (every value in [lo, hi]) in {@code bins} bins, in one pass: two interleaved tables (even
+     * and odd indices) added at the end, so that runs of equal bins do not wait on each other's increments.
+     */
+    private static long[] count(float[] v, double lo, double norm, int bins) {
+        int stride = bins + 1;
+        int[] h = new int[2 * stride];
+        int n = v.length;
         int i = 0;
         for (; i + 1 < n; i += 2) {
-            hx[bin(x[i], lo, norm, bins)]++;
-            hx[bins + bin(x[i + 1], lo, norm, bins)]++;
-            hy[bin(y[i], lo, norm, bins)]++;
-            hy[bins + bin(y[i + 1], lo, norm, bins)]++;
+            h[(int) ((v[i] - lo) * norm)]++;
+            h[stride + (int) ((v[i + 1] - lo) * norm)]++;
         }
-        for (; i < n; i++) {
-            hx[bin(x[i], lo, norm, bins)]++;
-            hy[bin(y[i], lo, norm, bins)]++;
+        if (i < n) {
+            h[(int) ((v[i] - lo) * norm)]++;
         }
-        long[] p = new long[bins];
-        long[] q = new long[bins];
+        long[] c = new long[bins];
         for (int k = 0; k < bins; k++) {
-            p[k] = (long) hx[k] + hx[bins + k];
-            q[k] = (long) hy[k] + hy[bins + k];
+            c[k] = (long) h[k] + h[stride + k];
         }
-        return new long[][] {p, q};
+        c[bins - 1] += (long) h[bins] + h[stride + bins];
+        return c;
     }
 
-    private static int bin(float v, double lo, double norm, int bins) {
-        int b = (int) ((v - lo) * norm);
-        return b < 0 ? 0 : (b >= bins ? bins - 1 : b);
+    /** {@link #count} of the values that {@code patterns} counts per bfloat16 bit pattern. */
+    private static long[] countPatterns(int[] patterns, double lo, double norm, int bins) {
+        long[] c = new long[bins + 1];
+        for (int k = 0; k < patterns.length; k++) {
+            int m = patterns[k];
+            if (m != 0) {
+                float v = Float.intBitsToFloat(k << 16);
+                c[(int) ((v - lo) * norm)] += m;
+            }
+        }
+        c[bins - 1] += c[bins];
+        return Arrays.copyOf(c, bins);
     }
 
     /** The reference tensor. */

@@ -12,7 +12,6 @@ import java.util.LinkedHashMap;
 import java.util.List;
 import java.util.Map;
 import java.util.Objects;
-import java.util.concurrent.Callable;
 import java.util.concurrent.CompletableFuture;
 import java.util.concurrent.ExecutionException;
 import java.util.concurrent.ExecutorService;
@@ -127,9 +126,13 @@ public final class Study {
 
     /**
      * Applies every spec to every tensor (tensor-major order) and collects one row per pair. Each tensor is read once
-     * for all specs, and the specs of a tensor run in parallel on up to {@link Runtime#availableProcessors()} threads
-     * (the quantizers themselves are single-threaded); rows come out in tensor-major, spec order whatever finishes
-     * first. An interrupt of the calling thread stops the running specs.
+     * for all specs, and the statistics of the original that every error report needs (its value counts for the KL
+     * divergence, see {@link ErrorReport#reference}) are taken once per tensor. With more than one spec, the specs
+     * run in parallel on up to {@link Runtime#availableProcessors()} threads (the quantizers themselves are
+     * single-threaded) fed from one queue of (tensor, spec) jobs: the next tensor is read and its specs start while
+     * the last specs of the current one finish, with at most two tensors in memory at a time; a single spec runs on
+     * the calling thread. Rows come out in tensor-major, spec order whatever finishes first. An interrupt of the
+     * calling thread stops the running specs.
      *
      * @throws IllegalArgumentException if no spec is given, or a spec does not fit a tensor
      */
@@ -141,65 +144,112 @@ public final class Study {
             Objects.requireNonNull(q, "quantizer");
         }
         int threads = Math.min(specs.length, Runtime.getRuntime().availableProcessors());
-        ExecutorService pool = threads > 1 ? Executors.newFixedThreadPool(threads, r -> {
-            Thread t = new Thread(r, "rungbook-study");
-            t.setDaemon(true);
-            return t;
-        }) : null;
         try {
-            List<StudyResult.Row> rows = new ArrayList<>();
-            long total = (long) tensors.size() * specs.length;
-            long done = 0;
-            for (Map.Entry<String, Supplier<Tensor>> e : tensors.entrySet()) {
-                Progress.checkInterrupted("study");
-                Tensor t = e.getValue().get();
-                List<Future<StudyResult.Row>> pending = new ArrayList<>();
-                for (Quantizer q : specs) {
-                    Callable<StudyResult.Row> job = () -> row(e.getKey(), t, q);
-                    pending.add(pool == null ? CompletableFuture.completedFuture(call(job)) : pool.submit(job));
-                }
-                for (Future<StudyResult.Row> f : pending) {
-                    StudyResult.Row r = await(f, pending);
-                    rows.add(r);
-                    done++;
-                    progress.update("study", done, total, r.metrics()[ErrorReport.METRICS.indexOf("mse")]);
-                }
-            }
-            return new StudyResult(rows);
+            return threads > 1 ? parallel(specs, threads) : serial(specs);
         } finally {
-            if (pool != null) {
-                pool.shutdownNow();
-            }
             progress.finish("study");
         }
     }
 
-    private StudyResult.Row row(String name, Tensor t, Quantizer q) {
-        Quantized r = q.apply(t, progress);
-        ErrorReport err = r.error();
-        return new StudyResult.Row(name, q.label(), t.size(), r.bitsPerWeight(), r.bytes(), err.values());
+    /** A tensor read and prepared as the reference of its error reports. */
+    private record Prepared(String name, Tensor tensor, ErrorReport.Reference reference) {
     }
 
-    private static <T> T call(Callable<T> job) {
+    private Prepared prepare(Map.Entry<String, Supplier<Tensor>> e) {
+        Tensor t = e.getValue().get();
+        return new Prepared(e.getKey(), t, ErrorReport.reference(t));
+    }
+
+    private StudyResult serial(Quantizer[] specs) {
+        List<StudyResult.Row> rows = new ArrayList<>();
+        long total = (long) tensors.size() * specs.length;
+        for (Map.Entry<String, Supplier<Tensor>> e : tensors.entrySet()) {
+            Progress.checkInterrupted("study");
+            Prepared p = prepare(e);
+            for (Quantizer q : specs) {
+                Progress.checkInterrupted("study");
+                report(rows, row(p, q), total);
+            }
+        }
+        return new StudyResult(rows);
+    }
+
+    /** Tensors admitted at a time: the one finishing and the next. */
+    private static final int TENSORS_IN_FLIGHT = 2;
+
+    private StudyResult parallel(Quantizer[] specs, int threads) {
+        ExecutorService pool = Executors.newFixedThreadPool(threads, r -> {
+            Thread t = new Thread(r, "rungbook-study");
+            t.setDaemon(true);
+            return t;
+        });
+        // Per admitted tensor: its read first, then its spec jobs; dropped once its rows are in, so that the tensor
+        // can be freed.
+        List<List<CompletableFuture<?>>> admitted = new ArrayList<>();
         try {
-            return job.call();
-        } catch (RuntimeException e) {
-            throw e;
-        } catch (Exception e) {
-            throw new IllegalStateException(e);
+            List<Map.Entry<String, Supplier<Tensor>>> entries = new ArrayList<>(tensors.entrySet());
+            List<StudyResult.Row> rows = new ArrayList<>();
+            long total = (long) entries.size() * specs.length;
+            int next = 0;
+            for (int i = 0; i < entries.size(); i++) {
+                // Admit tensors up to the window. The pool's queue is first in, first out: a tensor's read (and
+                // then its specs) queue behind the specs of the tensors before it, so a thread that runs out of
+                // specs of tensor i moves on to tensor i + 1 instead of waiting for its partner.
+                while (next < entries.size() && next < i + TENSORS_IN_FLIGHT) {
+                    Progress.checkInterrupted("study");
+                    Map.Entry<String, Supplier<Tensor>> e = entries.get(next++);
+                    CompletableFuture<Prepared> prep = CompletableFuture.supplyAsync(() -> prepare(e), pool);
+                    List<CompletableFuture<?>> jobs = new ArrayList<>();
+                    jobs.add(prep);
+                    for (Quantizer q : specs) {
+                        jobs.add(prep.thenApplyAsync(p -> row(p, q), pool));
+                    }
+                    admitted.add(jobs);
+                }
+                List<CompletableFuture<?>> jobs = admitted.get(i);
+                for (int j = 1; j < jobs.size(); j++) {
+                    report(rows, (StudyResult.Row) await(jobs.get(j), admitted), total);
+                }
+                admitted.set(i, null);
+            }
+            return new StudyResult(rows);
+        } finally {
+            cancel(admitted);
+            pool.shutdownNow(); // interrupts the specs still running
+        }
+    }
+
+    private void report(List<StudyResult.Row> rows, StudyResult.Row r, long total) {
+        rows.add(r);
+        progress.update("study", rows.size(), total, r.metrics()[ErrorReport.METRICS.indexOf("mse")]);
+    }
+
+    private StudyResult.Row row(Prepared p, Quantizer q) {
+        Quantized r = q.apply(p.tensor(), progress);
+        // The same values as r.error(), with the original's value counts shared by the specs of the tensor.
+        ErrorReport err = ErrorReport.of(p.reference(), r.dequantized());
+        return new StudyResult.Row(p.name(), q.label(), p.tensor().size(), r.bitsPerWeight(), r.bytes(),
+                err.values());
+    }
+
+    private static void cancel(List<List<CompletableFuture<?>>> admitted) {
+        for (List<CompletableFuture<?>> jobs : admitted) {
+            if (jobs != null) {
+                jobs.forEach(f -> f.cancel(true));
+            }
         }
     }
 
     /** The result of {@code f}; its failure rethrown as it was; on interrupt, every pending job is cancelled. */
-    private static <T> T await(Future<T> f, List<? extends Future<?>> all) {
+    private static Object await(Future<?> f, List<List<CompletableFuture<?>>> all) {
         try {
             return f.get();
         } catch (InterruptedException e) {
-            all.forEach(x -> x.cancel(true));
+            cancel(all);
             Thread.currentThread().interrupt();
             throw new OperationInterruptedException("study");
         } catch (ExecutionException e) {
-            all.forEach(x -> x.cancel(true));
+            cancel(all);
             Throwable c = e.getCause();
             if (c instanceof RuntimeException re) {
                 throw re;

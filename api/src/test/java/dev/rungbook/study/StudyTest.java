@@ -141,4 +141,69 @@ class StudyTest {
         assertTrue(e.getMessage().startsWith("tensor 'fc2.weight': group size 128 does not divide dimension 1"),
                 e.getMessage());
     }
+
+    @Test
+    void theJobQueueKeepsRowsValuesAndReadsAsTheSerialStudy() {
+        // five lazy tensors (three of bf16 values, two of plain floats) and four specs: more tensors than the two
+        // admitted at a time, so the queue runs specs of two tensors side by side
+        Quantizer[] specs = {Quantizer.linear(8), Quantizer.linear(4).perGroup(1, 32), Quantizer.nf4(),
+            Quantizer.parse("fp8-e4m3 per-channel(0)")};
+        int tensors = 5;
+        java.util.concurrent.atomic.AtomicLong reported = new java.util.concurrent.atomic.AtomicLong();
+        java.util.concurrent.atomic.AtomicIntegerArray loads = new java.util.concurrent.atomic.AtomicIntegerArray(
+                tensors);
+        List<String> early = java.util.Collections.synchronizedList(new ArrayList<>());
+        Map<String, Tensor> m = new LinkedHashMap<>();
+        Tensor[] eager = new Tensor[tensors];
+        for (int i = 0; i < tensors; i++) {
+            float[] v = Fixtures.gaussian(20 + i, 32 * 64);
+            if (i % 2 == 0) {
+                for (int j = 0; j < v.length; j++) {
+                    v[j] = Float.intBitsToFloat(Float.floatToRawIntBits(v[j]) & 0xFFFF0000);
+                }
+            }
+            int idx = i;
+            eager[i] = Tensor.of(v, 32, 64).withName("t" + i);
+            m.put("t" + i, Tensor.lazy("t" + i, dev.rungbook.tensor.DType.F32, new int[] {32, 64}, () -> {
+                loads.incrementAndGet(idx);
+                // admitted only once every row of tensor idx - 2 is in
+                if (reported.get() < (long) Math.max(0, idx - 1) * specs.length) {
+                    early.add("t" + idx + " read after " + reported.get() + " rows");
+                }
+                return v.clone();
+            }));
+        }
+        Table t = Study.of(m).progress((task, d, total, loss) -> {
+            if (task.equals("study")) {
+                reported.set(d);
+            }
+        }).compare(specs).table();
+        assertEquals(tensors * specs.length, t.rowCount());
+        assertEquals(List.of(), early);
+        int row = 0;
+        for (int i = 0; i < tensors; i++) {
+            assertEquals(1, loads.get(i), "t" + i + " read once");
+            for (Quantizer q : specs) {
+                assertEquals("t" + i, t.stringColumn("tensor").get(row));
+                assertEquals(q.label(), t.stringColumn("spec").get(row));
+                double[] v = q.apply(eager[i]).error().values();
+                for (int k = 0; k < v.length; k++) {
+                    assertEquals(Double.doubleToRawLongBits(v[k]), Double.doubleToRawLongBits(
+                            t.doubleColumn(ErrorReport.METRICS.get(k)).get(row)), "t" + i + " " + q.label()
+                            + " " + ErrorReport.METRICS.get(k));
+                }
+                row++;
+            }
+        }
+    }
+
+    @Test
+    void aSpecFailingOnALaterTensorStopsTheParallelStudyWithItsMessage() {
+        Tensor w3 = Tensor.of(Fixtures.gaussian(4, 16 * 64), 16, 64).withName("fc3.weight");
+        IllegalArgumentException e = assertThrows(IllegalArgumentException.class,
+                () -> Study.of(w1, w1.withName("copy"), w2, w3).compare(Quantizer.linear(8), Quantizer.linear(4)
+                        .perGroup(1, 128)));
+        assertTrue(e.getMessage().startsWith("tensor 'fc2.weight': group size 128 does not divide dimension 1"),
+                e.getMessage());
+    }
 }

@@ -40,7 +40,8 @@ import org.openjdk.jmh.infra.BenchmarkParams;
  * studied with four specs against one spec, through the same {@link Study} call that {@code rungbook study} makes
  * (each tensor read once for all specs). Each benchmark runs in its own JVM capped at {@code -Xmx1g}, so finishing is
  * itself the heap bound; the peak heap in use during the measured iterations (sum of the heap pools' peaks, garbage
- * included) is written to {@code results/StudyBench-heap.json} for the summary.
+ * included) is written to {@code results/StudyBench-heap-METHOD.json} for the summary, with the system load average
+ * at the start and end of the trial (wall-clock scores on a shared machine are only as good as that load).
  *
  * <p>The issue's size is 2048 MiB; {@code bench/run StudyBench} uses a smaller {@code mib} (see there) so that the
  * shared 2-core machine is not tied up for long: the work per tensor is the same, only the tensor count changes.
@@ -65,12 +66,14 @@ public class StudyBench {
 
     private Path file;
     private long peak;
+    private double loadAtStart;
 
     @Setup(Level.Trial)
     public void makeFile() throws IOException {
         Path dir = Path.of(System.getProperty("rungbook.bench.dir", "target/bench-data"));
         Files.createDirectories(dir);
         file = dir.resolve("study-" + mib + "MiB.bf16.safetensors");
+        loadAtStart = ManagementFactory.getOperatingSystemMXBean().getSystemLoadAverage();
         if (Files.exists(file)) {
             return;
         }
@@ -123,8 +126,9 @@ public class StudyBench {
         String method = params.getBenchmark().substring(params.getBenchmark().lastIndexOf('.') + 1);
         Path f = out.resolve("StudyBench-heap-" + method + ".json");
         String json = String.format(Locale.ROOT, "{\"benchmark\": \"%s\", \"mib\": %d, \"xmx_mib\": %d, "
-                + "\"peak_heap_mib\": %.1f}%n", method, mib, Runtime.getRuntime().maxMemory() >> 20,
-                peak / (1024.0 * 1024.0));
+                + "\"peak_heap_mib\": %.1f, \"load_average_start\": %.2f, \"load_average_end\": %.2f}%n", method,
+                mib, Runtime.getRuntime().maxMemory() >> 20, peak / (1024.0 * 1024.0), loadAtStart,
+                ManagementFactory.getOperatingSystemMXBean().getSystemLoadAverage());
         Files.write(f, json.getBytes(StandardCharsets.UTF_8));
     }
 
