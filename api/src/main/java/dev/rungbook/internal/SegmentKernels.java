@@ -30,8 +30,6 @@ package dev.rungbook.internal;
  */
 public final class SegmentKernels {
     private static final float MAGIC = 12582912f; // 1.5 * 2^23
-    /** Quotients at least this large in magnitude are redone in double (the magic-number rounding needs less). */
-    private static final float ROUND_LIMIT = 4194304f; // 2^22
 
     private SegmentKernels() {
     }
@@ -47,7 +45,7 @@ public final class SegmentKernels {
      * @param zero an integer-valued zero point within {@code [qmin, qmax]} (or 0)
      * @param qmin smallest code
      * @param qmax largest code
-     * @return the number of elements redone in double (float ties and quotients beyond {@code 2^22})
+     * @return the number of elements redone in double (float ties)
      */
     public static int linear(float[] w, int off, int m, float scale, float zero, int qmin, int qmax, float[] deq,
             byte[] bytes, short[] shorts) {
@@ -58,11 +56,12 @@ public final class SegmentKernels {
         for (int i = off; i < end; i++) {
             float t = w[i] / scale;
             float r = (t + MAGIC) - MAGIC;
-            // |t - r| is exact; d is 0 at a float tie and otherwise at most -2^-25, NaN for an infinite quotient
+            // Below 2^22, |t - r| is exact and d is 0 at a float tie and otherwise at most -2^-25; the square root
+            // of -d * 2^26 - 1 is NaN exactly at a tie (and for an infinite quotient), so the code becomes NaN.
+            // Beyond 2^22 the rounding is not exact, but r keeps the sign and magnitude of t, so the code is clamped
+            // to the same end as the definition's (a spurious tie there is only redone).
             float d = Math.abs(t - r) - 0.5f;
-            // negative (so its square root NaN) at a tie or beyond 2^22, else at least 0
-            float flag = Math.min(-d * 0x1p26f - 1f, ROUND_LIMIT - Math.abs(t));
-            float c = (r + zero) + 0f * (float) Math.sqrt(flag);
+            float c = (r + zero) + 0f * (float) Math.sqrt(-d * 0x1p26f - 1f);
             deq[i] = Math.max(lo, Math.min(hi, c));
         }
         int redo = 0;
@@ -102,62 +101,73 @@ public final class SegmentKernels {
 
     // ------------------------------------------------------------------ fixed levels (NF4)
 
+    /** Buckets per unit of the quotient in the level table: {@code 2 * BUCKETS + 1} buckets cover [-1, 1]. */
+    private static final int BUCKETS = 4096;
+
     /**
-     * A table of 16 ascending levels prepared for {@link #levels}: the midpoints in double and their float
-     * neighbours.
+     * A table of ascending levels within [-1, 1] prepared for {@link #levels}: the midpoints in double, and for each
+     * bucket {@code b = (int) ((y + 1) * 4096)} of the float quotient {@code y} the code every quotient of that
+     * bucket has, or -1 for the few buckets that hold a midpoint's float neighbour (where the count is done in
+     * double, as the definition does). The bucket function is monotone in {@code y} (float addition and
+     * multiplication by a positive constant are), so a bucket is an interval of floats, and a bucket without a
+     * midpoint's neighbour has one count.
      */
     public static final class Levels {
         final float[] levels;
         final double[] mids;
-        /** {@code hi[j] * SPREAD}, the float at or above midpoint j, spread. */
-        final float[] hiSpread;
-        /** The float at or below midpoint j; {@code +Infinity} at index 15. */
-        final float[] lo;
+        /** Code per bucket, -1 where the double count decides. */
+        final byte[] codes;
 
         private Levels(float[] levels) {
             this.levels = levels.clone();
-            mids = new double[15];
-            hiSpread = new float[15];
-            lo = new float[16];
-            for (int j = 0; j < 15; j++) {
-                double mid = ((double) levels[j] + levels[j + 1]) / 2;
-                mids[j] = mid;
-                float f = (float) mid;
-                float h = f >= mid ? f : Math.nextUp(f);
-                float l = f <= mid ? f : Math.nextDown(f);
-                hiSpread[j] = h * SPREAD;
-                lo[j] = l;
+            int k = levels.length;
+            mids = new double[k - 1];
+            for (int j = 0; j < k - 1; j++) {
+                mids[j] = ((double) levels[j] + levels[j + 1]) / 2;
             }
-            lo[15] = Float.POSITIVE_INFINITY;
+            codes = new byte[2 * BUCKETS + 1];
+            for (int b = 0; b < codes.length; b++) {
+                float rep = (b + 0.5f) / BUCKETS - 1f;
+                codes[b] = bucket(rep) == b ? (byte) count(mids, rep) : -1;
+            }
+            for (double mid : mids) {
+                float f = (float) mid;
+                float lo = f <= mid ? f : Math.nextDown(f);
+                float hi = f >= mid ? f : Math.nextUp(f);
+                for (int b = bucket(lo); b <= bucket(hi); b++) {
+                    codes[b] = -1;
+                }
+            }
         }
 
         /**
-         * The table for {@code levels}: 16 ascending floats within [-1, 1] whose midpoints are at least
-         * {@code 2^-30} in magnitude and apart (true of NF4).
+         * The table for {@code levels}: 2 to 128 ascending floats within [-1, 1].
          *
          * @throws IllegalArgumentException otherwise
          */
         public static Levels of(float[] levels) {
-            Checks.require(levels.length == 16, "a level table needs 16 levels, got %d", levels.length);
-            for (int j = 0; j < 16; j++) {
+            Checks.require(levels.length >= 2 && levels.length <= 128, "a level table needs 2 to 128 levels, got %d",
+                    levels.length);
+            for (int j = 0; j < levels.length; j++) {
                 Checks.require(Math.abs(levels[j]) <= 1f && (j == 0 || levels[j] > levels[j - 1]),
                         "levels must ascend within [-1, 1]");
             }
-            Levels t = new Levels(levels);
-            for (int j = 0; j < 15; j++) {
-                Checks.require(Math.abs(t.mids[j]) >= 0x1p-30 && (j == 0 || t.mids[j] - t.mids[j - 1] >= 0x1p-30),
-                        "level midpoints must be at least 2^-30 in magnitude and apart");
-            }
-            return t;
+            return new Levels(levels);
         }
     }
 
-    /**
-     * {@code 2^60}: float differences of a quotient within [-1, 1] and a midpoint of at least {@code 2^-30} are
-     * multiples of at least {@code 2^-54} when not zero, so their spread is 0 or at least 64 in magnitude (and at most
-     * {@code 2^61}).
-     */
-    private static final float SPREAD = 0x1p60f;
+    private static int bucket(float y) {
+        return (int) ((y + 1f) * BUCKETS);
+    }
+
+    /** The number of {@code mids} strictly below {@code y} (the definition). */
+    private static int count(double[] mids, double y) {
+        int c = 0;
+        for (double mid : mids) {
+            c += mid < y ? 1 : 0;
+        }
+        return c;
+    }
 
     /**
      * Level codes of {@code w[off, off + m)} with scale {@code scale} (every {@code |w[i] / scale| <= 1}): the code of
@@ -165,46 +175,26 @@ public final class SegmentKernels {
      * {@code bytes}, and its value {@code (float) (scale * level)} goes into {@code deq}. {@code y} is scratch of at
      * least {@code m} floats.
      *
-     * @return the number of elements redone in double
+     * @return the number of elements counted in double
      */
     public static int levels(float[] w, int off, int m, float scale, Levels table, float[] deq, byte[] bytes,
             float[] y) {
-        int end = off + m;
-        float[] hs = table.hiSpread;
-        float h0 = hs[0], h1 = hs[1], h2 = hs[2], h3 = hs[3], h4 = hs[4], h5 = hs[5], h6 = hs[6], h7 = hs[7];
-        float h8 = hs[8], h9 = hs[9], h10 = hs[10], h11 = hs[11], h12 = hs[12], h13 = hs[13], h14 = hs[14];
-        for (int i = off, k = 0; i < end; i++, k++) {
-            y[k] = w[i] / scale;
-        }
-        // count of hi_j below the quotient: each term is min(max(spread difference, 0), 1), so 0 or 1
-        for (int i = off, k = 0; i < end; i++, k++) {
-            float u = y[k] * SPREAD;
-            float c = Math.min(Math.max(u - h0, 0f), 1f) + Math.min(Math.max(u - h1, 0f), 1f)
-                    + Math.min(Math.max(u - h2, 0f), 1f) + Math.min(Math.max(u - h3, 0f), 1f)
-                    + Math.min(Math.max(u - h4, 0f), 1f) + Math.min(Math.max(u - h5, 0f), 1f)
-                    + Math.min(Math.max(u - h6, 0f), 1f) + Math.min(Math.max(u - h7, 0f), 1f)
-                    + Math.min(Math.max(u - h8, 0f), 1f) + Math.min(Math.max(u - h9, 0f), 1f)
-                    + Math.min(Math.max(u - h10, 0f), 1f) + Math.min(Math.max(u - h11, 0f), 1f)
-                    + Math.min(Math.max(u - h12, 0f), 1f) + Math.min(Math.max(u - h13, 0f), 1f)
-                    + Math.min(Math.max(u - h14, 0f), 1f);
-            deq[i] = c;
+        for (int k = 0; k < m; k++) {
+            y[k] = w[off + k] / scale;
         }
         float[] lv = table.levels;
-        float[] lo = table.lo;
+        byte[] codes = table.codes;
+        int last = codes.length - 1;
         int redo = 0;
-        for (int i = off, k = 0; i < end; i++, k++) {
-            int c = (int) deq[i];
-            if (y[k] >= lo[c]) {
-                // on a midpoint's float neighbour: count in double, as the definition does
-                double q = w[i] / (double) scale;
-                c = 0;
-                for (double mid : table.mids) {
-                    c += mid < q ? 1 : 0;
-                }
+        for (int k = 0; k < m; k++) {
+            int b = Math.min(Math.max(bucket(y[k]), 0), last);
+            int c = codes[b];
+            if (c < 0) {
+                c = count(table.mids, w[off + k] / (double) scale);
                 redo++;
             }
-            bytes[i] = (byte) c;
-            deq[i] = scale * lv[c];
+            bytes[off + k] = (byte) c;
+            deq[off + k] = scale * lv[c];
         }
         return redo;
     }

@@ -618,6 +618,7 @@ final class Engine {
         float[] scales = new float[seg.count];
         byte[] bytes = new byte[n];
         float[] y = new float[Math.min(m, KERNEL_CHUNK)];
+        SegmentKernels.Levels table = NF4_TABLE;
         for (int s = 0; s < seg.count; s++) {
             step(s);
             int off = seg.offset(s);
@@ -625,7 +626,7 @@ final class Engine {
             float sc = levelScale(new Range(-a, a));
             scales[s] = sc;
             for (int c = 0; c < m; c += KERNEL_CHUNK) {
-                SegmentKernels.levels(data, off + c, Math.min(KERNEL_CHUNK, m - c), sc, NF4_TABLE, deq, bytes, y);
+                SegmentKernels.levels(data, off + c, Math.min(KERNEL_CHUNK, m - c), sc, table, deq, bytes, y);
             }
         }
         progress.finish(task);
