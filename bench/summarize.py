@@ -55,7 +55,12 @@ LABELS = [("plainCopy", "plain copy of the matrix"),
           ("apiPerChannelInt8AllMetrics", "API: same spec, every metric incl. KL of histograms"),
           ("apiPerGroupInt4", "API: int4 per-group 128"),
           ("apiNf4", "API: NF4 block 64"),
-          ("apiCodebook16On2To24", "API: codebook k=16 on 2^24 values")]
+          ("apiCodebook16On2To24", "API: codebook k=16 on 2^24 values"),
+          ("apiFp8PerChannel", "API: FP8 E4M3 per-channel"),
+          ("applyPerChannelInt8", "apply only: per-channel asym int8 (fused row kernel)"),
+          ("applyPerGroupInt4", "apply only: int4 per-group 128"),
+          ("applyNf4", "apply only: NF4 block 64"),
+          ("applyFp8PerChannel", "apply only: FP8 E4M3 per-channel")]
 
 npr = None
 npf = os.path.join(out, "numpy-quantize.json")
@@ -64,7 +69,7 @@ if os.path.exists(npf):
         npr = json.load(f)
 
 
-def quantize_section(title, note, q, qv, before, np_ms, np_what):
+def quantize_section(title, note, q, qv, before, np_ms, np_what, before_label="previous implementation"):
     copy = ms(q["plainCopy"])
     cols = "| benchmark | ms | x plain copy |"
     sep = "| --- | ---: | ---: |"
@@ -72,7 +77,7 @@ def quantize_section(title, note, q, qv, before, np_ms, np_what):
         cols += " ms, Vector API module | x plain copy |"
         sep += " ---: | ---: |"
     if before:
-        cols += " ms, previous implementation | speed-up |"
+        cols += f" ms, {before_label} | speed-up |"
         sep += " ---: | ---: |"
     res = [title, "", note, "", cols, sep]
     for k, label in LABELS:
@@ -103,6 +108,16 @@ def quantize_section(title, note, q, qv, before, np_ms, np_what):
         vf = ms(qv["fusedPerChannelInt8"])
         line += f", {ms(qv['apiPerGroupInt4']) / vf:.1f}x and {ms(qv['apiNf4']) / vf:.1f}x with the module"
     res.append(line + ".")
+    if all(k in q for k in ("applyPerGroupInt4", "applyNf4", "applyFp8PerChannel", "applyPerChannelInt8")):
+        line = ("`apply` alone (codes, scales and dequantized values, no error report) takes "
+                f"{ms(q['applyPerGroupInt4']) / fused:.1f}x (int4 per-group), {ms(q['applyNf4']) / fused:.1f}x (NF4) "
+                f"and {ms(q['applyFp8PerChannel']) / fused:.1f}x (FP8 per channel) the fused figure, against "
+                f"{ms(q['applyPerChannelInt8']) / fused:.1f}x for per-channel int8 on the fused row kernel")
+        if qv and all(k in qv for k in ("applyPerGroupInt4", "applyNf4", "applyFp8PerChannel")):
+            vf = ms(qv["fusedPerChannelInt8"])
+            line += (f"; {ms(qv['applyPerGroupInt4']) / vf:.1f}x, {ms(qv['applyNf4']) / vf:.1f}x and "
+                     f"{ms(qv['applyFp8PerChannel']) / vf:.1f}x with the module")
+        res.append(line + ".")
     res.append(f"Codebook k = 16 on 2^24 values through the API: **{ms(q['apiCodebook16On2To24']) / 1000:.2f} s** "
                f"(target: under 0.5 s).")
     res.append("")
@@ -117,10 +132,12 @@ if cpu:
         "single-threaded). Used as the headline because the shared machine's load (10 to 15 on 2 cores) made the "
         "JMH wall-clock scores below swing by more than their own size. 'Vector API module': a JVM started with "
         "`--add-modules jdk.incubator.vector`, where the min/max reductions and the fused error sums run on the "
-        "incubating Vector API with the same results bit for bit. 'Previous implementation': commit 8464e60, timed "
-        "the same way in the same session.",
+        "incubating Vector API with the same results bit for bit. 'General path': the cases that the fused segment "
+        "kernels serve (per-group int4, NF4, FP8 per channel) run again with the kernels switched off "
+        "(`-Drungbook.segmentKernels=false` set around each call), interleaved with the rest in the same run; the "
+        "results are the same bits either way (SegmentKernelsTest). 'apply only' cases leave out the error report.",
         cpu, load("QuantizeCpuTime-vector.json"), load("QuantizeCpuTime-before.json"),
-        npr.get("median_cpu_ms") if npr else None, "median thread CPU time")
+        npr.get("median_cpu_ms") if npr else None, "median thread CPU time", "general path")
 
 q = load("QuantizeBench.json")
 if q:

@@ -142,8 +142,21 @@ final class Engine {
 
     Quantized run() {
         int axis = resolveAxis();
-        maxAbs = checkFinite();
         seg = new Segments(shape, q.granularity, axis);
+        // The segment kernels that reduce every segment first (min/max or max |x|) see a NaN or infinity there and
+        // then refuse the tensor exactly as checkFinite does, which saves a pass over the values; every other path
+        // checks the whole tensor first.
+        if (q.kind == Quantizer.Kind.LINEAR && !(q.rounding instanceof LayerRounding) && !fusedSpec()
+                && linearKernelEligible()) {
+            return linearKernel();
+        }
+        if (q.kind == Quantizer.Kind.FLOAT && q.scaled && floatKernelEligible()) {
+            return floatKernel();
+        }
+        if (q.kind == Quantizer.Kind.NF4 && !q.pow2 && nf4KernelEligible()) {
+            return nf4Kernel();
+        }
+        maxAbs = checkFinite();
         switch (q.kind) {
             case LINEAR:
                 if (q.rounding instanceof LayerRounding) {
@@ -413,8 +426,13 @@ final class Engine {
      * matrix (per channel of axis 0) or for the whole tensor. Those specs run through the fused row kernel.
      */
     private boolean fusedEligible() {
+        return fusedSpec() && maxAbs < FUSED_LIMIT;
+    }
+
+    /** {@link #fusedEligible} without the magnitude condition (known before the values are checked). */
+    private boolean fusedSpec() {
         boolean rows = seg.axis < 0 || (seg.axis == 0 && seg.groupSize == 0);
-        return rows && n > 0 && seg.size > 0 && maxAbs < FUSED_LIMIT && !q.unsigned && !q.midRise && !q.pow2 && (q.symmetric || !q.narrow)
+        return rows && n > 0 && seg.size > 0 && !q.unsigned && !q.midRise && !q.pow2 && (q.symmetric || !q.narrow)
                 && q.range.equals(dev.rungbook.range.RangeRule.minMax()) && q.rounding == Rounding.nearest();
     }
 
@@ -582,6 +600,9 @@ final class Engine {
             step(s);
             int off = seg.offset(s);
             float[] mm = Lanes.minMax(data, off, off + m, Float.POSITIVE_INFINITY, Float.NEGATIVE_INFINITY);
+            if (!(mm[0] >= -Float.MAX_VALUE && mm[1] <= Float.MAX_VALUE)) {
+                checkFinite(); // throws, naming the first NaN or infinity
+            }
             float[] p = linearParams(new Range(mm[0], mm[1]));
             scales[s] = p[0];
             zps[s] = p[1];
@@ -623,6 +644,9 @@ final class Engine {
             step(s);
             int off = seg.offset(s);
             float a = Lanes.maxAbs(data, off, off + m);
+            if (!(a <= Float.MAX_VALUE)) {
+                checkFinite(); // throws, naming the first NaN or infinity
+            }
             float sc = levelScale(new Range(-a, a));
             scales[s] = sc;
             for (int c = 0; c < m; c += KERNEL_CHUNK) {
@@ -648,6 +672,9 @@ final class Engine {
             float sc = 1f;
             if (q.scaled) {
                 float a = Lanes.maxAbs(data, off, off + m);
+                if (!(a <= Float.MAX_VALUE)) {
+                    checkFinite(); // throws, naming the first NaN or infinity
+                }
                 sc = floatScale(new Range(-a, a));
             }
             scales[s] = sc;

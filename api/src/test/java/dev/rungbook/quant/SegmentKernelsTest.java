@@ -336,6 +336,42 @@ class SegmentKernelsTest {
     }
 
     @Test
+    void nanAndInfinityAreRefusedAsOnTheGeneralPath() {
+        SplittableRandom r = new SplittableRandom(307);
+        List<Quantizer> specs = new ArrayList<>(List.of(Quantizer.linear(4).perGroup(-1, 16), Quantizer.linear(8)
+                .unsigned(), Quantizer.nf4().blockSize(16), Quantizer.floatFormat(FloatFormat.E4M3).perChannel(0),
+                Quantizer.floatFormat(FloatFormat.E5M2).unscaled()));
+        for (float bad : new float[] {Float.NaN, Float.POSITIVE_INFINITY, Float.NEGATIVE_INFINITY}) {
+            for (int at : new int[] {0, 17, 500, 1023}) {
+                float[] v = new float[1024];
+                for (int i = 0; i < v.length; i++) {
+                    v[i] = (float) r.nextGaussian();
+                }
+                v[at] = bad;
+                v[(at + 700) % 1024] = bad; // a second bad value: the message names the first
+                Tensor t = Tensor.of(v, 16, 64).withName("w");
+                for (Quantizer q : specs) {
+                    String want = null;
+                    try {
+                        run(q, t, false);
+                    } catch (IllegalArgumentException e) {
+                        want = e.getMessage();
+                    }
+                    String got = null;
+                    try {
+                        run(q, t, true);
+                    } catch (IllegalArgumentException e) {
+                        got = e.getMessage();
+                    }
+                    // Source: the general path's refusal (the whole tensor checked before any segment).
+                    assertTrue(want != null && want.contains("index " + Math.min(at, (at + 700) % 1024)), want);
+                    assertEquals(want, got, q.label());
+                }
+            }
+        }
+    }
+
+    @Test
     void e4m3CodesOfTheKernelMatchTheSpecification() {
         float[] v = {448f, -448f, 0.001953125f, -0f, 240f, 0.5f, 1f, 2.25f};
         Quantized q = run(Quantizer.floatFormat(FloatFormat.E4M3).unscaled(), Tensor.of(v, 1, 8), true);
