@@ -179,16 +179,15 @@ public final class SegmentKernels {
      */
     public static int levels(float[] w, int off, int m, float scale, Levels table, float[] deq, byte[] bytes,
             float[] y) {
+        // the buckets' float arguments, (q + 1) * BUCKETS, as bucket() computes them; |q| <= 1 keeps them in range
         for (int k = 0; k < m; k++) {
-            y[k] = w[off + k] / scale;
+            y[k] = (w[off + k] / scale + 1f) * BUCKETS;
         }
         float[] lv = table.levels;
         byte[] codes = table.codes;
-        int last = codes.length - 1;
         int redo = 0;
         for (int k = 0; k < m; k++) {
-            int b = Math.min(Math.max(bucket(y[k]), 0), last);
-            int c = codes[b];
+            int c = codes[(int) y[k]];
             if (c < 0) {
                 c = count(table.mids, w[off + k] / (double) scale);
                 redo++;
@@ -225,26 +224,22 @@ public final class SegmentKernels {
         for (int i = off; i < end; i++) {
             deq[i] = w[i] / scale; // the quotients, replaced by the values below
         }
+        // magnitudes compare as their bit patterns (non-negative floats order like their bits as ints)
+        int maxBits = Float.floatToRawIntBits(max);
+        int minNormalBits = Float.floatToRawIntBits(minNormal);
         for (int i = off; i < end; i++) {
-            float x = deq[i];
-            int xb = Float.floatToRawIntBits(x);
-            float a = Math.min(Math.abs(x), max);
-            int code;
-            float r;
-            if (a < minNormal) {
-                float s = a + magic;
-                code = Float.floatToRawIntBits(s) - magicBits;
-                r = s - magic;
-            } else {
-                int b = Float.floatToRawIntBits(a);
-                int rb = (b + half + ((b >>> shift) & 1)) & mask;
-                code = (rb >>> shift) - exponentOffset;
-                r = Float.intBitsToFloat(rb);
-            }
+            int xb = Float.floatToRawIntBits(deq[i]);
             int sign = xb & 0x80000000;
+            int ab = Math.min(xb & 0x7FFFFFFF, maxBits); // saturate
+            int rb = (ab + half + ((ab >>> shift) & 1)) & mask; // nearest even at the format's fraction width
+            int code = (rb >>> shift) - exponentOffset;
+            if (ab < minNormalBits) { // the format's subnormal range: its step is the ulp of magic
+                float sum = Float.intBitsToFloat(ab) + magic;
+                code = Float.floatToRawIntBits(sum) - magicBits;
+                rb = Float.floatToRawIntBits(sum - magic);
+            }
             code |= sign >>> signShift;
-            float v = Float.intBitsToFloat(Float.floatToRawIntBits(r) | sign);
-            deq[i] = scale * v;
+            deq[i] = scale * Float.intBitsToFloat(rb | sign);
             if (bytes != null) {
                 bytes[i] = (byte) code;
             } else {
