@@ -62,14 +62,22 @@ LABELS = [("plainCopy", "plain copy of the matrix"),
           ("applyNf4", "apply only: NF4 block 64"),
           ("applyFp8PerChannel", "apply only: FP8 E4M3 per-channel")]
 
-npr = None
-npf = os.path.join(out, "numpy-quantize.json")
-if os.path.exists(npf):
-    with open(npf) as f:
-        npr = json.load(f)
+def load_numpy(name):
+    path = os.path.join(out, name)
+    if not os.path.exists(path):
+        return None
+    with open(path) as f:
+        return json.load(f)
 
 
-def quantize_section(title, note, q, qv, before, np_ms, np_what, before_label="previous implementation"):
+# numpy-quantize.json is timed with the CPU-time harness; numpy-quantize-jmh.json, when present, is the NumPy run
+# made in the session of the JMH results (so that each table's ratio compares figures of one session).
+npr = load_numpy("numpy-quantize.json")
+npr_jmh = load_numpy("numpy-quantize-jmh.json") or npr
+
+
+def quantize_section(title, note, q, qv, before, np_ms, np_what, before_label="previous implementation", np_row=None):
+    np_row = np_row or npr
     copy = ms(q["plainCopy"])
     cols = "| benchmark | ms | x plain copy |"
     sep = "| --- | ---: | ---: |"
@@ -94,7 +102,7 @@ def quantize_section(title, note, q, qv, before, np_ms, np_what, before_label="p
     fused = ms(q["fusedPerChannelInt8"])
     api = ms(q["apiPerChannelInt8"])
     if np_ms:
-        line = (f"NumPy {npr['numpy']} doing the fused job: {np_ms:.1f} ms ({np_what}), so the fused kernel is "
+        line = (f"NumPy {np_row['numpy']} doing the fused job: {np_ms:.1f} ms ({np_what}), so the fused kernel is "
                 f"**{np_ms / fused:.1f}x** faster (target 5x)")
         if qv:
             line += f", **{np_ms / ms(qv['fusedPerChannelInt8']):.1f}x** with the Vector API module"
@@ -104,9 +112,13 @@ def quantize_section(title, note, q, qv, before, np_ms, np_what, before_label="p
         line += f", **{ms(qv['fusedPerChannelInt8']) / ms(qv['plainCopy']):.1f}x** with the Vector API module"
     line += (f"; per-group int4 and NF4 through the API take {ms(q['apiPerGroupInt4']) / fused:.1f}x and "
              f"{ms(q['apiNf4']) / fused:.1f}x the fused figure (target: within 2x)")
+    if "apiFp8PerChannel" in q:
+        line += f", FP8 E4M3 per channel {ms(q['apiFp8PerChannel']) / fused:.1f}x"
     if qv:
         vf = ms(qv["fusedPerChannelInt8"])
-        line += f", {ms(qv['apiPerGroupInt4']) / vf:.1f}x and {ms(qv['apiNf4']) / vf:.1f}x with the module"
+        line += f"; {ms(qv['apiPerGroupInt4']) / vf:.1f}x and {ms(qv['apiNf4']) / vf:.1f}x with the module"
+        if "apiFp8PerChannel" in qv:
+            line += f" (FP8 {ms(qv['apiFp8PerChannel']) / vf:.1f}x)"
     res.append(line + ".")
     if all(k in q for k in ("applyPerGroupInt4", "applyNf4", "applyFp8PerChannel", "applyPerChannelInt8")):
         line = ("`apply` alone (codes, scales and dequantized values, no error report) takes "
@@ -146,7 +158,7 @@ if q:
         "JMH average times (ms/op). On a quiet machine these are the figures to use; this run was made on a loaded "
         "one (see the error columns of the JSON files) and is kept for completeness.",
         q, load("QuantizeVectorBench.json"), load("QuantizeBench-before.json"),
-        npr["median_ms"] if npr else None, "median wall clock")
+        npr_jmh["median_ms"] if npr_jmh else None, "median wall clock", np_row=npr_jmh)
 
 ada = load("LearnedRoundingBench-adaptive.json")
 if ada:
