@@ -376,8 +376,10 @@ final class Engine {
         linearSegment(v, m, scF, zF, s, rr, codes, deq, 0);
     }
 
-    /** {@link #linearSegment(float[], int, float, float, int, ElementRounding, int[], float[])} with the values
-     * written to {@code deq[off, off + m)}. */
+    /**
+     * {@link #linearSegment(float[], int, float, float, int, ElementRounding, int[], float[])} with the values
+     * written to {@code deq[off, off + m)}.
+     */
     private void linearSegment(float[] v, int m, float scF, float zF, int s, ElementRounding rr, int[] codes,
             float[] deq, int off) {
         double sc = scF;
