@@ -60,7 +60,9 @@ LABELS = [("plainCopy", "plain copy of the matrix"),
           ("applyPerChannelInt8", "apply only: per-channel asym int8 (fused row kernel)"),
           ("applyPerGroupInt4", "apply only: int4 per-group 128"),
           ("applyNf4", "apply only: NF4 block 64"),
-          ("applyFp8PerChannel", "apply only: FP8 E4M3 per-channel")]
+          ("applyFp8PerChannel", "apply only: FP8 E4M3 per-channel"),
+          ("studyOneSpec", "study share of one tensor: int8, every metric"),
+          ("studyFourSpecs", "study share of one tensor: int8, int4 g128, nf4, fp8 per-channel, every metric")]
 
 def load_numpy(name):
     path = os.path.join(out, name)
@@ -129,6 +131,12 @@ def quantize_section(title, note, q, qv, before, np_ms, np_what, before_label="p
             vf = ms(qv["fusedPerChannelInt8"])
             line += (f"; {ms(qv['applyPerGroupInt4']) / vf:.1f}x, {ms(qv['applyNf4']) / vf:.1f}x and "
                      f"{ms(qv['applyFp8PerChannel']) / vf:.1f}x with the module")
+        res.append(line + ".")
+    if "studyFourSpecs" in q and "studyOneSpec" in q:
+        line = (f"A study's work per tensor on one thread (every metric per spec): four specs take "
+                f"**{ms(q['studyFourSpecs']) / ms(q['studyOneSpec']):.2f}x** the time of one (target: at most 2.5x)")
+        if before and "studyFourSpecs" in before:
+            line += f", {ms(before['studyFourSpecs']) / ms(q['studyOneSpec']):.2f}x on the {before_label}"
         res.append(line + ".")
     res.append(f"Codebook k = 16 on 2^24 values through the API: **{ms(q['apiCodebook16On2To24']) / 1000:.2f} s** "
                f"(target: under 0.5 s).")

@@ -27,7 +27,9 @@ import java.util.function.DoubleSupplier;
  * figure to hold against the fused kernel's. With a third argument, the cases the library's fused segment kernels
  * serve (per-group int4, NF4, FP8 per channel) also run with the kernels switched off (system property
  * {@code rungbook.segmentKernels=false}, set around each call), interleaved with the rest, and their medians go to
- * that file under the same names: the general per-segment path, timed in the same run.
+ * that file under the same names: the general per-segment path, timed in the same run. {@code studyOneSpec} and
+ * {@code studyFourSpecs} do one tensor's share of {@link StudyBench}'s study (every metric per spec) on one thread,
+ * so that the four-to-one ratio is measured in CPU time, free of the wall clock's sharing.
  *
  * <p>Usage: {@code java -Xmx6g [--add-modules jdk.incubator.vector] -cp bench/target/benchmarks.jar
  * dev.rungbook.bench.QuantizeCpuTime OUT.json [REPETITIONS [GENERAL-PATH.json]]}.
@@ -94,11 +96,13 @@ public final class QuantizeCpuTime {
                 new Case("applyPerChannelInt8", () -> QuantizeBench.quantizeOnly(QuantizeBench.INT8, matrix)),
                 new Case("applyPerGroupInt4", () -> QuantizeBench.quantizeOnly(QuantizeBench.INT4_G128, matrix)),
                 new Case("applyNf4", () -> QuantizeBench.quantizeOnly(Quantizer.nf4(), matrix)),
-                new Case("applyFp8PerChannel", () -> QuantizeBench.quantizeOnly(QuantizeBench.FP8, matrix)));
+                new Case("applyFp8PerChannel", () -> QuantizeBench.quantizeOnly(QuantizeBench.FP8, matrix)),
+                new Case("studyOneSpec", () -> everyMetric(matrix, StudyBench.SPECS[0])),
+                new Case("studyFourSpecs", () -> everyMetric(matrix, StudyBench.SPECS)));
         // The cases the segment kernels serve, again with the kernels off (the general per-segment path), timed
         // interleaved with the rest when a second output file is given.
         List<String> generalNames = before == null ? List.of() : List.of("apiPerGroupInt4", "apiNf4",
-                "apiFp8PerChannel", "applyPerGroupInt4", "applyNf4", "applyFp8PerChannel");
+                "apiFp8PerChannel", "applyPerGroupInt4", "applyNf4", "applyFp8PerChannel", "studyFourSpecs");
         List<Case> all = new ArrayList<>(cases);
         for (String name : generalNames) {
             Case c = cases.stream().filter(x -> x.name().equals(name)).findFirst().orElseThrow();
@@ -143,6 +147,18 @@ public final class QuantizeCpuTime {
         if (before != null) {
             write(before, generalRows);
         }
+    }
+
+    /**
+     * What a study does per tensor and spec, one spec after the other on this thread: {@code apply}, then every
+     * metric of the error report (the KL divergence of histograms too), as {@code StudyBench}'s four specs.
+     */
+    private static double everyMetric(Tensor t, Quantizer... specs) {
+        double sum = 0;
+        for (Quantizer q : specs) {
+            sum += q.apply(t).error().values()[0];
+        }
+        return sum;
     }
 
     /** Writes JSON rows atomically (a temporary file in the target folder, then a move over the target). */
