@@ -55,16 +55,31 @@ LABELS = [("plainCopy", "plain copy of the matrix"),
           ("apiPerChannelInt8AllMetrics", "API: same spec, every metric incl. KL of histograms"),
           ("apiPerGroupInt4", "API: int4 per-group 128"),
           ("apiNf4", "API: NF4 block 64"),
-          ("apiCodebook16On2To24", "API: codebook k=16 on 2^24 values")]
+          ("apiCodebook16On2To24", "API: codebook k=16 on 2^24 values"),
+          ("apiFp8PerChannel", "API: FP8 E4M3 per-channel"),
+          ("applyPerChannelInt8", "apply only: per-channel asym int8 (fused row kernel)"),
+          ("applyPerGroupInt4", "apply only: int4 per-group 128"),
+          ("applyNf4", "apply only: NF4 block 64"),
+          ("applyFp8PerChannel", "apply only: FP8 E4M3 per-channel"),
+          ("studyOneSpec", "study share of one tensor: int8, every metric"),
+          ("studyFourSpecs", "study share of one tensor: int8, int4 g128, nf4, fp8 per-channel, every metric")]
 
-npr = None
-npf = os.path.join(out, "numpy-quantize.json")
-if os.path.exists(npf):
-    with open(npf) as f:
-        npr = json.load(f)
+def load_numpy(name):
+    path = os.path.join(out, name)
+    if not os.path.exists(path):
+        return None
+    with open(path) as f:
+        return json.load(f)
 
 
-def quantize_section(title, note, q, qv, before, np_ms, np_what):
+# numpy-quantize.json is timed with the CPU-time harness; numpy-quantize-jmh.json, when present, is the NumPy run
+# made in the session of the JMH results (so that each table's ratio compares figures of one session).
+npr = load_numpy("numpy-quantize.json")
+npr_jmh = load_numpy("numpy-quantize-jmh.json") or npr
+
+
+def quantize_section(title, note, q, qv, before, np_ms, np_what, before_label="previous implementation", np_row=None):
+    np_row = np_row or npr
     copy = ms(q["plainCopy"])
     cols = "| benchmark | ms | x plain copy |"
     sep = "| --- | ---: | ---: |"
@@ -72,7 +87,7 @@ def quantize_section(title, note, q, qv, before, np_ms, np_what):
         cols += " ms, Vector API module | x plain copy |"
         sep += " ---: | ---: |"
     if before:
-        cols += " ms, previous implementation | speed-up |"
+        cols += f" ms, {before_label} | speed-up |"
         sep += " ---: | ---: |"
     res = [title, "", note, "", cols, sep]
     for k, label in LABELS:
@@ -89,7 +104,7 @@ def quantize_section(title, note, q, qv, before, np_ms, np_what):
     fused = ms(q["fusedPerChannelInt8"])
     api = ms(q["apiPerChannelInt8"])
     if np_ms:
-        line = (f"NumPy {npr['numpy']} doing the fused job: {np_ms:.1f} ms ({np_what}), so the fused kernel is "
+        line = (f"NumPy {np_row['numpy']} doing the fused job: {np_ms:.1f} ms ({np_what}), so the fused kernel is "
                 f"**{np_ms / fused:.1f}x** faster (target 5x)")
         if qv:
             line += f", **{np_ms / ms(qv['fusedPerChannelInt8']):.1f}x** with the Vector API module"
@@ -99,10 +114,30 @@ def quantize_section(title, note, q, qv, before, np_ms, np_what):
         line += f", **{ms(qv['fusedPerChannelInt8']) / ms(qv['plainCopy']):.1f}x** with the Vector API module"
     line += (f"; per-group int4 and NF4 through the API take {ms(q['apiPerGroupInt4']) / fused:.1f}x and "
              f"{ms(q['apiNf4']) / fused:.1f}x the fused figure (target: within 2x)")
+    if "apiFp8PerChannel" in q:
+        line += f", FP8 E4M3 per channel {ms(q['apiFp8PerChannel']) / fused:.1f}x"
     if qv:
         vf = ms(qv["fusedPerChannelInt8"])
-        line += f", {ms(qv['apiPerGroupInt4']) / vf:.1f}x and {ms(qv['apiNf4']) / vf:.1f}x with the module"
+        line += f"; {ms(qv['apiPerGroupInt4']) / vf:.1f}x and {ms(qv['apiNf4']) / vf:.1f}x with the module"
+        if "apiFp8PerChannel" in qv:
+            line += f" (FP8 {ms(qv['apiFp8PerChannel']) / vf:.1f}x)"
     res.append(line + ".")
+    if all(k in q for k in ("applyPerGroupInt4", "applyNf4", "applyFp8PerChannel", "applyPerChannelInt8")):
+        line = ("`apply` alone (codes, scales and dequantized values, no error report) takes "
+                f"{ms(q['applyPerGroupInt4']) / fused:.1f}x (int4 per-group), {ms(q['applyNf4']) / fused:.1f}x (NF4) "
+                f"and {ms(q['applyFp8PerChannel']) / fused:.1f}x (FP8 per channel) the fused figure, against "
+                f"{ms(q['applyPerChannelInt8']) / fused:.1f}x for per-channel int8 on the fused row kernel")
+        if qv and all(k in qv for k in ("applyPerGroupInt4", "applyNf4", "applyFp8PerChannel")):
+            vf = ms(qv["fusedPerChannelInt8"])
+            line += (f"; {ms(qv['applyPerGroupInt4']) / vf:.1f}x, {ms(qv['applyNf4']) / vf:.1f}x and "
+                     f"{ms(qv['applyFp8PerChannel']) / vf:.1f}x with the module")
+        res.append(line + ".")
+    if "studyFourSpecs" in q and "studyOneSpec" in q:
+        line = (f"A study's work per tensor on one thread (every metric per spec): four specs take "
+                f"**{ms(q['studyFourSpecs']) / ms(q['studyOneSpec']):.2f}x** the time of one (target: at most 2.5x)")
+        if before and "studyFourSpecs" in before:
+            line += f", {ms(before['studyFourSpecs']) / ms(q['studyOneSpec']):.2f}x on the {before_label}"
+        res.append(line + ".")
     res.append(f"Codebook k = 16 on 2^24 values through the API: **{ms(q['apiCodebook16On2To24']) / 1000:.2f} s** "
                f"(target: under 0.5 s).")
     res.append("")
@@ -117,10 +152,12 @@ if cpu:
         "single-threaded). Used as the headline because the shared machine's load (10 to 15 on 2 cores) made the "
         "JMH wall-clock scores below swing by more than their own size. 'Vector API module': a JVM started with "
         "`--add-modules jdk.incubator.vector`, where the min/max reductions and the fused error sums run on the "
-        "incubating Vector API with the same results bit for bit. 'Previous implementation': commit 8464e60, timed "
-        "the same way in the same session.",
+        "incubating Vector API with the same results bit for bit. 'General path': the cases that the fused segment "
+        "kernels serve (per-group int4, NF4, FP8 per channel) run again with the kernels switched off "
+        "(`-Drungbook.segmentKernels=false` set around each call), interleaved with the rest in the same run; the "
+        "results are the same bits either way (SegmentKernelsTest). 'apply only' cases leave out the error report.",
         cpu, load("QuantizeCpuTime-vector.json"), load("QuantizeCpuTime-before.json"),
-        npr.get("median_cpu_ms") if npr else None, "median thread CPU time")
+        npr.get("median_cpu_ms") if npr else None, "median thread CPU time", "general path")
 
 q = load("QuantizeBench.json")
 if q:
@@ -129,7 +166,7 @@ if q:
         "JMH average times (ms/op). On a quiet machine these are the figures to use; this run was made on a loaded "
         "one (see the error columns of the JSON files) and is kept for completeness.",
         q, load("QuantizeVectorBench.json"), load("QuantizeBench-before.json"),
-        npr["median_ms"] if npr else None, "median wall clock")
+        npr_jmh["median_ms"] if npr_jmh else None, "median wall clock", np_row=npr_jmh)
 
 ada = load("LearnedRoundingBench-adaptive.json")
 if ada:

@@ -5,6 +5,7 @@ import dev.rungbook.internal.Fused;
 import dev.rungbook.internal.Lanes;
 import dev.rungbook.internal.MxScale;
 import dev.rungbook.internal.Nf4;
+import dev.rungbook.internal.SegmentKernels;
 import dev.rungbook.internal.TensorAccess;
 import dev.rungbook.progress.Progress;
 import dev.rungbook.range.Range;
@@ -34,8 +35,25 @@ final class Engine {
     /** Flat indices of segment {@link #indexSegment}, for rules that need each element's index. */
     private int[] indices;
     private int indexSegment = -1;
+    /** Whether the fused segment kernels may run; false sends every spec down the general per-segment path. */
+    private final boolean kernels;
+
+    /**
+     * The system property that, set to {@code false}, turns the fused segment kernels off (read at each run; for
+     * benchmarks that time both paths in one JVM). The results are the same bits either way.
+     */
+    static final String KERNELS_PROPERTY = "rungbook.segmentKernels";
+
+    /** Which loop the last {@link #run} took ("fused", "kernel" or "general"), for tests of the routing. */
+    private String path = "general";
 
     Engine(Quantizer q, Tensor t, Progress progress) {
+        this(q, t, progress, !"false".equals(System.getProperty(KERNELS_PROPERTY)));
+    }
+
+    /** An engine that uses the fused segment kernels for the specs they cover only if {@code kernels}. */
+    Engine(Quantizer q, Tensor t, Progress progress, boolean kernels) {
+        this.kernels = kernels;
         this.q = q;
         this.t = t;
         this.progress = progress;
@@ -124,20 +142,37 @@ final class Engine {
 
     Quantized run() {
         int axis = resolveAxis();
-        maxAbs = checkFinite();
         seg = new Segments(shape, q.granularity, axis);
+        // The segment kernels that reduce every segment first (min/max or max |x|) see a NaN or infinity there and
+        // then refuse the tensor exactly as checkFinite does, which saves a pass over the values; every other path
+        // checks the whole tensor first.
+        if (q.kind == Quantizer.Kind.LINEAR && !(q.rounding instanceof LayerRounding) && !fusedSpec()
+                && linearKernelEligible()) {
+            return linearKernel();
+        }
+        if (q.kind == Quantizer.Kind.FLOAT && q.scaled && floatKernelEligible()) {
+            return floatKernel();
+        }
+        if (q.kind == Quantizer.Kind.NF4 && !q.pow2 && nf4KernelEligible()) {
+            return nf4Kernel();
+        }
+        maxAbs = checkFinite();
         switch (q.kind) {
             case LINEAR:
                 if (q.rounding instanceof LayerRounding) {
                     return linearLayer();
                 }
-                return fusedEligible() ? linearFused() : linear();
+                if (fusedEligible()) {
+                    path = "fused";
+                    return linearFused();
+                }
+                return linearKernelEligible() ? linearKernel() : linear();
             case FLOAT:
-                return floatFormat();
+                return floatKernelEligible() ? floatKernel() : floatFormat();
             case LOG:
                 return levelsGrid(logLevels(q.bits));
             case NF4:
-                return levelsGrid(Nf4.levels());
+                return nf4KernelEligible() ? nf4Kernel() : levelsGrid(Nf4.levels());
             case MX:
                 return mx();
             case CODEBOOK:
@@ -145,6 +180,11 @@ final class Engine {
             default:
                 return signGrid();
         }
+    }
+
+    /** Which loop the last {@link #run} took: "fused" (the row kernel), "kernel" (a segment kernel) or "general". */
+    String path() {
+        return path;
     }
 
     private void step(int s) {
@@ -333,6 +373,15 @@ final class Engine {
      */
     private void linearSegment(float[] v, int m, float scF, float zF, int s, ElementRounding rr, int[] codes,
             float[] deq) {
+        linearSegment(v, m, scF, zF, s, rr, codes, deq, 0);
+    }
+
+    /**
+     * {@link #linearSegment(float[], int, float, float, int, ElementRounding, int[], float[])} with the values
+     * written to {@code deq[off, off + m)}.
+     */
+    private void linearSegment(float[] v, int m, float scF, float zF, int s, ElementRounding rr, int[] codes,
+            float[] deq, int off) {
         double sc = scF;
         double z = zF;
         double qmin = q.qmin();
@@ -344,7 +393,7 @@ final class Engine {
                 double c = nearestCode(v[i], sc, inv, z);
                 c = c < qmin ? qmin : (c > qmax ? qmax : c);
                 codes[i] = (int) c;
-                deq[i] = (float) (sc * (codes[i] - z));
+                deq[off + i] = (float) (sc * (codes[i] - z));
             }
         } else {
             int[] idx = indicesOf(s);
@@ -353,7 +402,7 @@ final class Engine {
                 double c = rr.round(onLevel(u, u + z), idx[i]);
                 c = c < qmin ? qmin : (c > qmax ? qmax : c);
                 codes[i] = (int) c;
-                deq[i] = (float) (sc * (codes[i] - z));
+                deq[off + i] = (float) (sc * (codes[i] - z));
             }
         }
     }
@@ -379,8 +428,13 @@ final class Engine {
      * matrix (per channel of axis 0) or for the whole tensor. Those specs run through the fused row kernel.
      */
     private boolean fusedEligible() {
+        return fusedSpec() && maxAbs < FUSED_LIMIT;
+    }
+
+    /** {@link #fusedEligible} without the magnitude condition (known before the values are checked). */
+    private boolean fusedSpec() {
         boolean rows = seg.axis < 0 || (seg.axis == 0 && seg.groupSize == 0);
-        return rows && n > 0 && seg.size > 0 && maxAbs < FUSED_LIMIT && !q.unsigned && !q.midRise && !q.pow2 && (q.symmetric || !q.narrow)
+        return rows && n > 0 && seg.size > 0 && !q.unsigned && !q.midRise && !q.pow2 && (q.symmetric || !q.narrow)
                 && q.range.equals(dev.rungbook.range.RangeRule.minMax()) && q.rounding == Rounding.nearest();
     }
 
@@ -493,6 +547,161 @@ final class Engine {
         }
         progress.finish(task);
         return finish(deq, codes, scales, zps, null, linearOverhead());
+    }
+
+    // ------------------------------------------------------------------ fused segment kernels
+
+    /*
+     * Contiguous segments (the whole tensor, rows of axis 0, groups along the last axis) with the min-max range run
+     * through internal.SegmentKernels, which gives the general path's results bit for bit (codes, scales, zero points,
+     * values); everything else, and every spec when the kernels are off, takes the general path.
+     */
+
+    /** Values per kernel call inside a segment (bounds the scratch of the level kernel). */
+    private static final int KERNEL_CHUNK = 4096;
+
+    private boolean kernelSegments() {
+        return kernels && n > 0 && seg.size > 0 && seg.contiguous()
+                && q.range.equals(dev.rungbook.range.RangeRule.minMax());
+    }
+
+    /** Linear grids with nearest-even rounding and an integer zero point (not mid-rise). */
+    private boolean linearKernelEligible() {
+        return kernelSegments() && q.rounding == Rounding.nearest() && !q.midRise;
+    }
+
+    /** Float formats (the range matters only when scaled; every contiguous segment then has the min-max range). */
+    private boolean floatKernelEligible() {
+        return kernels && n > 0 && seg.size > 0 && seg.contiguous()
+                && (!q.scaled || q.range.equals(dev.rungbook.range.RangeRule.minMax()));
+    }
+
+    /** NF4 with the absmax scale (a power-of-two scale near the float32 limit would be infinite: general path). */
+    private boolean nf4KernelEligible() {
+        return kernelSegments() && !(q.pow2 && maxAbs > 0x1p126f);
+    }
+
+    /** A positive finite scale, as the kernels need (a power-of-two scale can underflow to 0). */
+    private static boolean usualScale(float sc) {
+        return sc > 0 && sc < Float.POSITIVE_INFINITY;
+    }
+
+    private Quantized linearKernel() {
+        path = "kernel";
+        int m = seg.size;
+        float[] deq = new float[n];
+        float[] scales = new float[seg.count];
+        float[] zps = new float[seg.count];
+        byte[] bytes = q.bits <= 8 ? new byte[n] : null;
+        short[] shorts = bytes == null ? new short[n] : null;
+        int qmin = q.qmin();
+        int qmax = q.qmax();
+        float[] buf = null;
+        int[] cbuf = null;
+        for (int s = 0; s < seg.count; s++) {
+            step(s);
+            int off = seg.offset(s);
+            float[] mm = Lanes.minMax(data, off, off + m, Float.POSITIVE_INFINITY, Float.NEGATIVE_INFINITY);
+            if (!(mm[0] >= -Float.MAX_VALUE && mm[1] <= Float.MAX_VALUE)) {
+                checkFinite(); // throws, naming the first NaN or infinity
+            }
+            float[] p = linearParams(new Range(mm[0], mm[1]));
+            scales[s] = p[0];
+            zps[s] = p[1];
+            if (usualScale(p[0])) {
+                SegmentKernels.linear(data, off, m, p[0], p[1], qmin, qmax, deq, bytes, shorts);
+            } else {
+                // a power-of-two scale that underflowed to 0 (or overflowed): the general loop, whatever it gives
+                if (buf == null) {
+                    buf = new float[m];
+                    cbuf = new int[m];
+                }
+                System.arraycopy(data, off, buf, 0, m);
+                linearSegment(buf, m, p[0], p[1], s, Rounding.nearest(), cbuf, deq, off);
+                for (int i = 0; i < m; i++) {
+                    if (bytes != null) {
+                        bytes[off + i] = (byte) cbuf[i];
+                    } else {
+                        shorts[off + i] = (short) cbuf[i];
+                    }
+                }
+            }
+        }
+        progress.finish(task);
+        Codes codes = bytes != null ? Codes.wrap(bytes, q.bits, !q.unsigned) : Codes.wrap(shorts, q.bits, !q.unsigned);
+        return finish(deq, codes, scales, zps, null, linearOverhead());
+    }
+
+    private static final SegmentKernels.Levels NF4_TABLE = SegmentKernels.Levels.of(Nf4.levels());
+
+    private Quantized nf4Kernel() {
+        path = "kernel";
+        int m = seg.size;
+        float[] deq = new float[n];
+        float[] scales = new float[seg.count];
+        byte[] bytes = new byte[n];
+        float[] y = new float[Math.min(m, KERNEL_CHUNK)];
+        SegmentKernels.Levels table = NF4_TABLE;
+        for (int s = 0; s < seg.count; s++) {
+            step(s);
+            int off = seg.offset(s);
+            float a = Lanes.maxAbs(data, off, off + m);
+            if (!(a <= Float.MAX_VALUE)) {
+                checkFinite(); // throws, naming the first NaN or infinity
+            }
+            float sc = levelScale(new Range(-a, a));
+            scales[s] = sc;
+            for (int c = 0; c < m; c += KERNEL_CHUNK) {
+                SegmentKernels.levels(data, off + c, Math.min(KERNEL_CHUNK, m - c), sc, table, deq, bytes, y);
+            }
+        }
+        progress.finish(task);
+        float[][] lv = new float[][] {Nf4.levels()};
+        return finish(deq, Codes.wrap(bytes, q.bits, false), scales, null, lv, (long) (q.pow2 ? 8 : 32) * seg.count);
+    }
+
+    private Quantized floatKernel() {
+        path = "kernel";
+        FloatFormat f = q.format;
+        int m = seg.size;
+        float[] deq = new float[n];
+        float[] scales = new float[seg.count];
+        byte[] bytes = f.bitWidth() <= 8 ? new byte[n] : null;
+        short[] shorts = bytes == null ? new short[n] : null;
+        for (int s = 0; s < seg.count; s++) {
+            step(s);
+            int off = seg.offset(s);
+            float sc = 1f;
+            if (q.scaled) {
+                float a = Lanes.maxAbs(data, off, off + m);
+                if (!(a <= Float.MAX_VALUE)) {
+                    checkFinite(); // throws, naming the first NaN or infinity
+                }
+                sc = floatScale(new Range(-a, a));
+            }
+            scales[s] = sc;
+            if (!usualScale(sc)) {
+                // a power-of-two scale that underflowed to 0: the general loop, whatever it gives
+                for (int i = off; i < off + m; i++) {
+                    float y = f.roundSaturating((float) (data[i] / (double) sc));
+                    if (bytes != null) {
+                        bytes[i] = (byte) f.encode(y);
+                    } else {
+                        shorts[i] = (short) f.encode(y);
+                    }
+                    deq[i] = (float) ((double) sc * y);
+                }
+                continue;
+            }
+            for (int c = 0; c < m; c += KERNEL_CHUNK) {
+                SegmentKernels.floatGrid(data, off + c, Math.min(KERNEL_CHUNK, m - c), sc, f.exponentBits(),
+                        f.mantissaBits(), f.max(), deq, bytes, shorts);
+            }
+        }
+        progress.finish(task);
+        Codes codes = bytes != null ? Codes.wrap(bytes, f.bitWidth(), false) : Codes.wrap(shorts, f.bitWidth(), false);
+        long overhead = q.scaled ? (long) (q.pow2 ? 8 : 32) * seg.count : 0;
+        return finish(deq, codes, scales, null, null, overhead);
     }
 
     // ------------------------------------------------------------------ float formats

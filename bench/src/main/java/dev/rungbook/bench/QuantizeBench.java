@@ -3,6 +3,7 @@ package dev.rungbook.bench;
 import dev.rungbook.internal.Fused;
 import dev.rungbook.quant.Quantized;
 import dev.rungbook.quant.Quantizer;
+import dev.rungbook.tensor.FloatFormat;
 import dev.rungbook.tensor.Tensor;
 import java.util.SplittableRandom;
 import java.util.concurrent.TimeUnit;
@@ -36,6 +37,12 @@ import org.openjdk.jmh.annotations.Warmup;
 @Fork(value = 1, jvmArgsAppend = {"-Xmx6g"})
 public class QuantizeBench {
     static final int N = 4096;
+    /** Per-channel asymmetric int8 (the fused kernel's spec). */
+    static final Quantizer INT8 = Quantizer.linear(8).asymmetric().perChannel(0);
+    /** Symmetric int4, groups of 128 along the input axis. */
+    static final Quantizer INT4_G128 = Quantizer.linear(4).perGroup(1, 128);
+    /** OCP FP8 E4M3, one scale per output channel (the fourth spec of the study benchmark). */
+    static final Quantizer FP8 = Quantizer.floatFormat(FloatFormat.E4M3).perChannel(0);
 
     private float[] w;
     private Tensor matrix;
@@ -122,6 +129,42 @@ public class QuantizeBench {
     @Benchmark
     public double apiCodebook16On2To24() {
         return Quantizer.codebook(16).apply(large).error().sqnrDb();
+    }
+
+    /** FP8 E4M3 per channel through the API. */
+    @Benchmark
+    public double apiFp8PerChannel() {
+        return FP8.apply(matrix).error().sqnrDb();
+    }
+
+    /** {@code apply} alone (codes, scales, dequantized values; no error report) for int4 per group of 128. */
+    @Benchmark
+    public double applyPerGroupInt4() {
+        return quantizeOnly(INT4_G128, matrix);
+    }
+
+    /** {@code apply} alone for NF4 blocks of 64. */
+    @Benchmark
+    public double applyNf4() {
+        return quantizeOnly(Quantizer.nf4(), matrix);
+    }
+
+    /** {@code apply} alone for FP8 E4M3 per channel. */
+    @Benchmark
+    public double applyFp8PerChannel() {
+        return quantizeOnly(FP8, matrix);
+    }
+
+    /** {@code apply} alone for per-channel asymmetric int8. */
+    @Benchmark
+    public double applyPerChannelInt8() {
+        return quantizeOnly(INT8, matrix);
+    }
+
+    /** Quantizes {@code t} with {@code q} and returns something of the result (so the work is not dropped). */
+    static double quantizeOnly(Quantizer q, Tensor t) {
+        Quantized r = q.apply(t);
+        return r.codes().get(r.codes().size() - 1) + r.dequantized().getFlat(0);
     }
 
     /** Per-channel int8 through the API with every metric of the report, the KL divergence of histograms too. */

@@ -23,11 +23,21 @@ import java.util.function.DoubleSupplier;
  * the rest is reported, in JMH's JSON layout (score in ms/op, mode {@code "cpu-time median"}) so that
  * {@code bench/summarize.py} reads it like a JMH result.
  *
+ * <p>The {@code apply*} cases time {@code apply} alone (codes, scales and dequantized values, no error report), the
+ * figure to hold against the fused kernel's. With a third argument, the cases the library's fused segment kernels
+ * serve (per-group int4, NF4, FP8 per channel) also run with the kernels switched off (system property
+ * {@code rungbook.segmentKernels=false}, set around each call), interleaved with the rest, and their medians go to
+ * that file under the same names: the general per-segment path, timed in the same run. {@code studyOneSpec} and
+ * {@code studyFourSpecs} do one tensor's share of {@link StudyBench}'s study (every metric per spec) on one thread,
+ * so that the four-to-one ratio is measured in CPU time, free of the wall clock's sharing.
+ *
  * <p>Usage: {@code java -Xmx6g [--add-modules jdk.incubator.vector] -cp bench/target/benchmarks.jar
- * dev.rungbook.bench.QuantizeCpuTime OUT.json [REPETITIONS]}.
+ * dev.rungbook.bench.QuantizeCpuTime OUT.json [REPETITIONS [GENERAL-PATH.json]]}.
  */
 public final class QuantizeCpuTime {
     private static final int WARM = 3;
+    /** The library's switch for its fused segment kernels (see the engine); "false" turns them off. */
+    private static final String KERNELS = "rungbook.segmentKernels";
 
     private QuantizeCpuTime() {
     }
@@ -46,6 +56,7 @@ public final class QuantizeCpuTime {
 
     public static void main(String[] args) throws IOException {
         int reps = args.length > 1 ? Integer.parseInt(args[1]) : 9;
+        Path before = args.length > 2 ? Path.of(args[2]) : null;
         int n = QuantizeBench.N;
         SplittableRandom r = new SplittableRandom(2);
         float[] w = new float[n * n];
@@ -80,14 +91,37 @@ public final class QuantizeCpuTime {
                         () -> Quantizer.linear(8).asymmetric().perChannel(0).apply(matrix).error().values()[8]),
                 new Case("apiPerGroupInt4", () -> Quantizer.linear(4).perGroup(1, 128).apply(matrix).error().sqnrDb()),
                 new Case("apiNf4", () -> Quantizer.nf4().apply(matrix).error().sqnrDb()),
-                new Case("apiCodebook16On2To24", () -> Quantizer.codebook(16).apply(large).error().sqnrDb()));
+                new Case("apiCodebook16On2To24", () -> Quantizer.codebook(16).apply(large).error().sqnrDb()),
+                new Case("apiFp8PerChannel", () -> QuantizeBench.FP8.apply(matrix).error().sqnrDb()),
+                new Case("applyPerChannelInt8", () -> QuantizeBench.quantizeOnly(QuantizeBench.INT8, matrix)),
+                new Case("applyPerGroupInt4", () -> QuantizeBench.quantizeOnly(QuantizeBench.INT4_G128, matrix)),
+                new Case("applyNf4", () -> QuantizeBench.quantizeOnly(Quantizer.nf4(), matrix)),
+                new Case("applyFp8PerChannel", () -> QuantizeBench.quantizeOnly(QuantizeBench.FP8, matrix)),
+                new Case("studyOneSpec", () -> everyMetric(matrix, StudyBench.SPECS[0])),
+                new Case("studyFourSpecs", () -> everyMetric(matrix, StudyBench.SPECS)));
+        // The cases the segment kernels serve, again with the kernels off (the general per-segment path), timed
+        // interleaved with the rest when a second output file is given.
+        List<String> generalNames = before == null ? List.of() : List.of("apiPerGroupInt4", "apiNf4",
+                "apiFp8PerChannel", "applyPerGroupInt4", "applyNf4", "applyFp8PerChannel", "studyFourSpecs");
+        List<Case> all = new ArrayList<>(cases);
+        for (String name : generalNames) {
+            Case c = cases.stream().filter(x -> x.name().equals(name)).findFirst().orElseThrow();
+            all.add(new Case(name, () -> {
+                System.setProperty(KERNELS, "false");
+                try {
+                    return c.body().getAsDouble();
+                } finally {
+                    System.clearProperty(KERNELS);
+                }
+            }));
+        }
         ThreadMXBean bean = ManagementFactory.getThreadMXBean();
-        double[][] times = new double[cases.size()][reps];
+        double[][] times = new double[all.size()][reps];
         double sink = 0;
         for (int rep = 0; rep < WARM + reps; rep++) {
-            for (int c = 0; c < cases.size(); c++) {
+            for (int c = 0; c < all.size(); c++) {
                 long t0 = bean.getCurrentThreadCpuTime();
-                sink += cases.get(c).body().getAsDouble();
+                sink += all.get(c).body().getAsDouble();
                 double ms = (bean.getCurrentThreadCpuTime() - t0) / 1e6;
                 if (rep >= WARM) {
                     times[c][rep - WARM] = ms;
@@ -95,18 +129,44 @@ public final class QuantizeCpuTime {
             }
         }
         List<String> rows = new ArrayList<>();
-        for (int c = 0; c < cases.size(); c++) {
+        List<String> generalRows = new ArrayList<>();
+        for (int c = 0; c < all.size(); c++) {
             double[] t = times[c].clone();
             Arrays.sort(t);
             double median = t[t.length / 2];
+            boolean general = c >= cases.size();
             System.out.printf(Locale.ROOT, "%-30s %10.1f ms (cpu, median of %d; min %.1f, max %.1f)%n",
-                    cases.get(c).name(), median, reps, t[0], t[t.length - 1]);
-            rows.add(String.format(Locale.ROOT, "{\"benchmark\": \"dev.rungbook.bench.QuantizeCpuTime.%s\", "
-                    + "\"mode\": \"cpu-time median\", \"primaryMetric\": {\"score\": %.3f, \"scoreUnit\": \"ms/op\", "
-                    + "\"min\": %.3f, \"max\": %.3f, \"repetitions\": %d}}", cases.get(c).name(), median, t[0],
-                    t[t.length - 1], reps));
+                    all.get(c).name() + (general ? " (general path)" : ""), median, reps, t[0], t[t.length - 1]);
+            (general ? generalRows : rows).add(String.format(Locale.ROOT, "{\"benchmark\": "
+                    + "\"dev.rungbook.bench.QuantizeCpuTime.%s\", \"mode\": \"cpu-time median\", \"primaryMetric\": "
+                    + "{\"score\": %.3f, \"scoreUnit\": \"ms/op\", \"min\": %.3f, \"max\": %.3f, \"repetitions\": %d}}",
+                    all.get(c).name(), median, t[0], t[t.length - 1], reps));
         }
         System.out.println("(checksum " + sink + ", vector API reductions: " + vectorised() + ")");
-        Files.writeString(Path.of(args[0]), "[\n" + String.join(",\n", rows) + "\n]\n", StandardCharsets.UTF_8);
+        write(Path.of(args[0]), rows);
+        if (before != null) {
+            write(before, generalRows);
+        }
+    }
+
+    /**
+     * What a study does per tensor and spec, one spec after the other on this thread: {@code apply}, then every
+     * metric of the error report (the KL divergence of histograms too), as {@code StudyBench}'s four specs.
+     */
+    private static double everyMetric(Tensor t, Quantizer... specs) {
+        double sum = 0;
+        for (Quantizer q : specs) {
+            sum += q.apply(t).error().values()[0];
+        }
+        return sum;
+    }
+
+    /** Writes JSON rows atomically (a temporary file in the target folder, then a move over the target). */
+    private static void write(Path target, List<String> rows) throws IOException {
+        Path abs = target.toAbsolutePath();
+        Path tmp = Files.createTempFile(abs.getParent(), abs.getFileName().toString(), ".tmp");
+        Files.writeString(tmp, "[\n" + String.join(",\n", rows) + "\n]\n", StandardCharsets.UTF_8);
+        Files.move(tmp, abs, java.nio.file.StandardCopyOption.REPLACE_EXISTING,
+                java.nio.file.StandardCopyOption.ATOMIC_MOVE);
     }
 }

@@ -1,0 +1,250 @@
+package dev.rungbook.internal;
+
+/**
+ * Fused per-segment kernels for contiguous segments (a whole tensor, a row of a row-major matrix, a group of
+ * consecutive elements along the last axis): round, clamp, store the codes and dequantize in a few tight loops over
+ * the segment, with results bit for bit those of the plain definitions the quantizer's general path evaluates in
+ * double. Internal.
+ *
+ * <p>Each kernel works mostly in float32 where the float result provably equals the double definition, and redoes in
+ * double only the elements where it might not (a quotient on a rounding boundary):
+ * <ul>
+ *   <li>{@link #linear}: the code is {@code clamp(rint(x / s + z), qmin, qmax)} with the quotient in double and
+ *       {@code z} an integer. The float quotient {@code t = fl32(x / s)} rounds to the same integer unless it is
+ *       itself a half-integer (rounding is monotone and half-integers below {@code 2^22} are floats; the double
+ *       quotient and the addition of {@code z} move the value by far less than its distance to the nearest half
+ *       integer), so only float ties are redone. The value is {@code s * (code - z)}, exact in double, so the float
+ *       product is the same number.</li>
+ *   <li>{@link #levels}: the code is the number of level midpoints {@code mid_j} (double) strictly below the double
+ *       quotient {@code x / s}. With {@code lo_j <= mid_j <= hi_j} the float neighbours of {@code mid_j}, a float
+ *       quotient above {@code hi_j} means the quotient is above {@code mid_j}, one below {@code lo_j} that it is not;
+ *       only a float quotient equal to {@code lo_j} or {@code hi_j} is redone in double. The count runs as a sum of
+ *       clamped differences (branch-free, so the JIT vectorises it).</li>
+ *   <li>{@link #floatGrid}: the value is the float format's nearest-even value of {@code fl32(x / s)}, saturating
+ *       at its largest magnitude, found from the float's bits (normal range: round the bit pattern at the format's
+ *       fraction width; below the format's smallest normal: add and subtract {@code 2^(emin - m + 23)}, whose ulp is
+ *       the format's subnormal step), and the code is built from the same bits. {@code fl32(fl64(x / s))} equals
+ *       {@code fl32(x / s)}: a double quotient of two floats is never exactly halfway between two floats unless the
+ *       exact quotient is.</li>
+ * </ul>
+ */
+public final class SegmentKernels {
+    private static final float MAGIC = 12582912f; // 1.5 * 2^23
+
+    private SegmentKernels() {
+    }
+
+    // ------------------------------------------------------------------ linear grids
+
+    /**
+     * Linear codes of {@code w[off, off + m)}: {@code clamp(rint(w[i] / (double) scale + zero), qmin, qmax)}, stored
+     * into {@code bytes} (if non-null) or {@code shorts} at the same index, and the values
+     * {@code (float) (scale * (code - zero))} into {@code deq} at the same index.
+     *
+     * @param scale a positive finite float (subnormal allowed)
+     * @param zero an integer-valued zero point within {@code [qmin, qmax]} (or 0)
+     * @param qmin smallest code
+     * @param qmax largest code
+     * @return the number of elements redone in double (float ties)
+     */
+    public static int linear(float[] w, int off, int m, float scale, float zero, int qmin, int qmax, float[] deq,
+            byte[] bytes, short[] shorts) {
+        int end = off + m;
+        float lo = qmin;
+        float hi = qmax;
+        // float codes; a tie or a quotient too large for the magic-number rounding becomes NaN
+        for (int i = off; i < end; i++) {
+            float t = w[i] / scale;
+            float r = (t + MAGIC) - MAGIC;
+            // Below 2^22, |t - r| is exact and d is 0 at a float tie and otherwise at most -2^-25; the square root
+            // of -d * 2^26 - 1 is NaN exactly at a tie (and for an infinite quotient), so the code becomes NaN.
+            // Beyond 2^22 the rounding is not exact, but r keeps the sign and magnitude of t, so the code is clamped
+            // to the same end as the definition's (a spurious tie there is only redone).
+            float d = Math.abs(t - r) - 0.5f;
+            float c = (r + zero) + 0f * (float) Math.sqrt(-d * 0x1p26f - 1f);
+            deq[i] = Math.max(lo, Math.min(hi, c));
+        }
+        int redo = 0;
+        if (bytes != null) {
+            for (int i = off; i < end; i++) {
+                float c = deq[i];
+                bytes[i] = (byte) (int) c;
+                redo += c != c ? 1 : 0;
+            }
+        } else {
+            for (int i = off; i < end; i++) {
+                float c = deq[i];
+                shorts[i] = (short) (int) c;
+                redo += c != c ? 1 : 0;
+            }
+        }
+        if (redo > 0) {
+            double sc = scale;
+            for (int i = off; i < end; i++) {
+                if (deq[i] != deq[i]) {
+                    double c = Math.rint(w[i] / sc + zero);
+                    int code = (int) (c < qmin ? qmin : (c > qmax ? qmax : c)); // an integer: no -0
+                    if (bytes != null) {
+                        bytes[i] = (byte) code;
+                    } else {
+                        shorts[i] = (short) code;
+                    }
+                    deq[i] = code;
+                }
+            }
+        }
+        for (int i = off; i < end; i++) {
+            deq[i] = (deq[i] - zero) * scale;
+        }
+        return redo;
+    }
+
+    // ------------------------------------------------------------------ fixed levels (NF4)
+
+    /** Buckets per unit of the quotient in the level table: {@code 2 * BUCKETS + 1} buckets cover [-1, 1]. */
+    private static final int BUCKETS = 4096;
+
+    /**
+     * A table of ascending levels within [-1, 1] prepared for {@link #levels}: the midpoints in double, and for each
+     * bucket {@code b = (int) ((y + 1) * 4096)} of the float quotient {@code y} the code every quotient of that
+     * bucket has, or -1 for the few buckets that hold a midpoint's float neighbour (where the count is done in
+     * double, as the definition does). The bucket function is monotone in {@code y} (float addition and
+     * multiplication by a positive constant are), so a bucket is an interval of floats, and a bucket without a
+     * midpoint's neighbour has one count.
+     */
+    public static final class Levels {
+        final float[] levels;
+        final double[] mids;
+        /** Code per bucket, -1 where the double count decides. */
+        final byte[] codes;
+
+        private Levels(float[] levels) {
+            this.levels = levels.clone();
+            int k = levels.length;
+            mids = new double[k - 1];
+            for (int j = 0; j < k - 1; j++) {
+                mids[j] = ((double) levels[j] + levels[j + 1]) / 2;
+            }
+            codes = new byte[2 * BUCKETS + 1];
+            for (int b = 0; b < codes.length; b++) {
+                float rep = (b + 0.5f) / BUCKETS - 1f;
+                codes[b] = bucket(rep) == b ? (byte) count(mids, rep) : -1;
+            }
+            for (double mid : mids) {
+                float f = (float) mid;
+                float lo = f <= mid ? f : Math.nextDown(f);
+                float hi = f >= mid ? f : Math.nextUp(f);
+                for (int b = bucket(lo); b <= bucket(hi); b++) {
+                    codes[b] = -1;
+                }
+            }
+        }
+
+        /**
+         * The table for {@code levels}: 2 to 128 ascending floats within [-1, 1].
+         *
+         * @throws IllegalArgumentException otherwise
+         */
+        public static Levels of(float[] levels) {
+            Checks.require(levels.length >= 2 && levels.length <= 128, "a level table needs 2 to 128 levels, got %d",
+                    levels.length);
+            for (int j = 0; j < levels.length; j++) {
+                Checks.require(Math.abs(levels[j]) <= 1f && (j == 0 || levels[j] > levels[j - 1]),
+                        "levels must ascend within [-1, 1]");
+            }
+            return new Levels(levels);
+        }
+    }
+
+    private static int bucket(float y) {
+        return (int) ((y + 1f) * BUCKETS);
+    }
+
+    /** The number of {@code mids} strictly below {@code y} (the definition). */
+    private static int count(double[] mids, double y) {
+        int c = 0;
+        for (double mid : mids) {
+            c += mid < y ? 1 : 0;
+        }
+        return c;
+    }
+
+    /**
+     * Level codes of {@code w[off, off + m)} with scale {@code scale} (every {@code |w[i] / scale| <= 1}): the code of
+     * element {@code i} is the number of midpoints strictly below {@code w[i] / (double) scale}, stored into
+     * {@code bytes}, and its value {@code (float) (scale * level)} goes into {@code deq}. {@code y} is scratch of at
+     * least {@code m} floats.
+     *
+     * @return the number of elements counted in double
+     */
+    public static int levels(float[] w, int off, int m, float scale, Levels table, float[] deq, byte[] bytes,
+            float[] y) {
+        // the buckets' float arguments, (q + 1) * BUCKETS, as bucket() computes them; |q| <= 1 keeps them in range
+        for (int k = 0; k < m; k++) {
+            y[k] = (w[off + k] / scale + 1f) * BUCKETS;
+        }
+        float[] lv = table.levels;
+        byte[] codes = table.codes;
+        int redo = 0;
+        for (int k = 0; k < m; k++) {
+            int c = codes[(int) y[k]];
+            if (c < 0) {
+                c = count(table.mids, w[off + k] / (double) scale);
+                redo++;
+            }
+            bytes[off + k] = (byte) c;
+            deq[off + k] = scale * lv[c];
+        }
+        return redo;
+    }
+
+    // ------------------------------------------------------------------ float formats
+
+    /**
+     * Float-format codes of {@code w[off, off + m)}: element {@code i} becomes {@code v}, the nearest-even value of
+     * {@code (float) (w[i] / (double) scale)} in a format with {@code exponentBits} exponent bits (bias
+     * {@code 2^(e-1) - 1}, smallest normal {@code 2^(1 - bias)}), {@code mantissaBits} fraction bits and largest
+     * magnitude {@code max} (saturating); its code
+     * (sign, biased exponent, fraction) goes into {@code bytes} or {@code shorts}, and {@code scale * v} into
+     * {@code deq}. Values must be finite and {@code scale} positive, so that every quotient is finite.
+     */
+    public static void floatGrid(float[] w, int off, int m, float scale, int exponentBits, int mantissaBits,
+            float max, float[] deq, byte[] bytes, short[] shorts) {
+        int end = off + m;
+        int bias = (1 << (exponentBits - 1)) - 1;
+        int minExponent = 1 - bias;
+        float minNormal = Math.scalb(1f, minExponent);
+        float magic = Math.scalb(1f, minExponent - mantissaBits + 23);
+        int magicBits = Float.floatToRawIntBits(magic);
+        int shift = 23 - mantissaBits;
+        int half = (1 << (shift - 1)) - 1;
+        int mask = -(1 << shift);
+        int exponentOffset = (127 - bias) << mantissaBits;
+        int signShift = 31 - exponentBits - mantissaBits;
+        for (int i = off; i < end; i++) {
+            deq[i] = w[i] / scale; // the quotients, replaced by the values below
+        }
+        // magnitudes compare as their bit patterns (non-negative floats order like their bits as ints)
+        int maxBits = Float.floatToRawIntBits(max);
+        int minNormalBits = Float.floatToRawIntBits(minNormal);
+        for (int i = off; i < end; i++) {
+            int xb = Float.floatToRawIntBits(deq[i]);
+            int sign = xb & 0x80000000;
+            int ab = Math.min(xb & 0x7FFFFFFF, maxBits); // saturate
+            int rb = (ab + half + ((ab >>> shift) & 1)) & mask; // nearest even at the format's fraction width
+            int code = (rb >>> shift) - exponentOffset;
+            if (ab < minNormalBits) { // the format's subnormal range: its step is the ulp of magic
+                float sum = Float.intBitsToFloat(ab) + magic;
+                code = Float.floatToRawIntBits(sum) - magicBits;
+                rb = Float.floatToRawIntBits(sum - magic);
+            }
+            code |= sign >>> signShift;
+            deq[i] = scale * Float.intBitsToFloat(rb | sign);
+            if (bytes != null) {
+                bytes[i] = (byte) code;
+            } else {
+                shorts[i] = (short) code;
+            }
+        }
+    }
+}
