@@ -255,9 +255,8 @@ public final class AdaptiveRounding implements LayerRounding {
         int size = w.length;
         float[] v = obj.initialV(w);
         float[] v0 = v.clone();
-        float[] grad = new float[size];
-        float[] m1 = new float[size];
-        float[] m2 = new float[size];
+        obj.prepare(v);
+        obj.resetMoments();
         int n = calibration.samples();
         int count = Math.min(batchSize, n);
         int[] order = new int[n];
@@ -284,8 +283,8 @@ public final class AdaptiveRounding implements LayerRounding {
                     order[i] = order[j];
                     order[j] = tmp;
                 }
-                double loss = obj.lossAndGradient(v, order, count, betaAt(t), t >= warm, grad);
-                adam(v, grad, m1, m2, t + 1);
+                double loss = obj.step(v, order, count, betaAt(t), t >= warm,
+                        new AdaptiveObjective.AdamStep(t + 1, learningRate));
                 if (t == losses.length) {
                     int grown = (int) Math.min(iterations, 2L * losses.length);
                     losses = Arrays.copyOf(losses, grown);
@@ -334,34 +333,6 @@ public final class AdaptiveRounding implements LayerRounding {
         return new AdaptiveObjective(la, TensorAccess.data(weights), shape[0], shape[1],
                 TensorAccess.data(calibration.inputs()), calibration.samples(), bias, calibration.activation(), grid,
                 lambda);
-    }
-
-    /**
-     * One Adam step (step number {@code t >= 1}) on {@code v}, in place, in float32 (moments and update; the bias
-     * corrections are folded into two constants computed in double): {@code v -= (lr / c1) m / (sqrt(s) /
-     * sqrt(c2) + eps)} with {@code c1 = 1 - 0.9^t}, {@code c2 = 1 - 0.999^t}. A plain float loop, which the JIT
-     * vectorises.
-     */
-    private void adam(float[] v, float[] g, float[] m1, float[] m2, int t) {
-        final float b1 = 0.9f;
-        final float b2 = 0.999f;
-        final float eps = 1e-8f;
-        float k1 = (float) (learningRate / (1 - Math.pow(0.9, t)));
-        float k2 = (float) (1 / Math.sqrt(1 - Math.pow(0.999, t)));
-        int size = v.length;
-        int parts = size < 1 << 15 ? 1 : 2;
-        java.util.stream.IntStream.range(0, parts).parallel().forEach(part -> {
-            int from = (int) ((long) size * part / parts);
-            int to = (int) ((long) size * (part + 1) / parts);
-            for (int e = from; e < to; e++) {
-                float gi = g[e];
-                float a = b1 * m1[e] + (1 - b1) * gi;
-                float b = b2 * m2[e] + (1 - b2) * gi * gi;
-                m1[e] = a;
-                m2[e] = b;
-                v[e] -= k1 * a / ((float) Math.sqrt(b) * k2 + eps);
-            }
-        });
     }
 
     @Override
