@@ -276,6 +276,11 @@ final class AdaptiveObjective {
         return w;
     }
 
+    /** {@code w / s + z} of weight {@code e}, in double. */
+    double scaledWeight(int e, float w) {
+        return w / (double) scale[e] + zero[e];
+    }
+
     /** The value of one code of weight {@code e}, in double. */
     double value(int e, int code) {
         return (double) scale[e] * (code - (double) zero[e]);
