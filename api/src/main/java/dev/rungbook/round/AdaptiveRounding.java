@@ -31,6 +31,13 @@ import java.util.function.Consumer;
  * rounded up where {@code h(V) >= 0.5}, else down, clamped to the grid's code range: the codes stay on the
  * quantizer's grid (any bits; per-tensor, per-channel or per-group scales).
  *
+ * <p>Our addition, on by default and switched off with {@link #polish(boolean) polish(false)}: after the hard
+ * rounding an exact flip search (single flips, pairs in short rows, variable-depth chains, per row from the learned
+ * rounding and from simple starts) lowers the output error on the whole calibration set further; it never raises it
+ * (see {@link #polish(boolean)}). On seeded tiny layers the published method alone lands at 1.0-6x the brute-force
+ * optimum and with the search at the optimum ({@code LearnedRoundingTest}); at 512 x 512 the search costs about 1.5 s
+ * of CPU. The label ends in {@code ", polish"} when it is on.
+ *
  * <p>Defaults, as published (check-values.md section 7; the schedule values are recalled, not confirmed):
  * 10,000 iterations, batches of 32 samples, lambda 0.01, beta 20 to 2, warm-up 20% without regulariser, Adam with
  * learning rate 1e-3 (betas 0.9 / 0.999, epsilon 1e-8); seed 0. Every setting returns a new rule.
@@ -44,11 +51,15 @@ import java.util.function.Consumer;
  * set for the caller, and {@link RoundingRun#interrupted()} says so. Runs are deterministic for a seed and a
  * linear-algebra backend.
  *
- * <p>Arithmetic: the per-weight work (rectified sigmoid, its derivative, the regulariser and Adam) runs in float32
- * in loops the JIT vectorises; the sigmoid is a polynomial within {@code 4e-7} of the double-precision value, the
- * regulariser's power {@code |2h - 1|^(beta - 1)} comes from a table made once per iteration (within
- * {@code 3e-6}). Loss curves stay as close to a double-precision implementation as two linear-algebra backends are
- * to each other ({@code bench/results/adaptive-curve-check.md}).
+ * <p>Arithmetic: the per-weight work (rectified sigmoid, its derivative, the regulariser, Adam and the next soft
+ * weight) runs in float32, fused into one pass per chunk of 1024 weights in loops Java 17's JIT vectorises, with row
+ * blocks in parallel (fixed by the layer's shape, so the result does not depend on the number of cores); the two
+ * products per iteration are single BLAS calls. The sigmoid is a polynomial within {@code 4e-7} of the
+ * double-precision value, the regulariser's power {@code |2h - 1|^(beta - 1)} comes from a float32 log2/exp2 of our
+ * own within {@code 1e-5} relative of {@link Math#pow}, and Adam moments below {@code 1e-28} and gradients below
+ * {@code 1e-18} are flushed to zero (they would otherwise become subnormal and slow every operation on them; their
+ * effect on V is below {@code lr * 1e-10} per step). Loss curves stay as close to the previous implementation as two
+ * linear-algebra backends are to each other ({@code bench/results/adaptive-curve-check.md}).
  */
 public final class AdaptiveRounding implements LayerRounding {
     private final Calibration calibration;
@@ -79,7 +90,10 @@ public final class AdaptiveRounding implements LayerRounding {
         this.polish = polish;
     }
 
-    /** Adaptive rounding with the published defaults (see the class documentation). */
+    /**
+     * Adaptive rounding with the published defaults, followed by the flip search ({@link #polish(boolean)}; see the
+     * class documentation).
+     */
     public static AdaptiveRounding of(Calibration calibration) {
         return new AdaptiveRounding(Objects.requireNonNull(calibration, "calibration"), 10_000, 32, 0.01, 20, 2, 0.2,
                 1e-3, 0L, null, true);
