@@ -145,9 +145,9 @@ if ada:
             a = json.load(f)
         # bench/adaptive/cpu_time.py: before and after in alternating JVMs, with the load average of the machine
         for r in a:
-            load = (f", load {r['load_before']:.1f} -> {r['load_after']:.1f}" if "load_before" in r else "")
+            ld = (f", load {r['load_before']:.1f} -> {r['load_after']:.1f}" if "load_before" in r else "")
             lines.append(f"- {r['what']}: {r['wall_s']:.1f} s wall, **{r['cpu_s']:.1f} s process CPU** "
-                         f"({r['backend']}{load})")
+                         f"({r['backend']}{ld})")
         cpu = {}
         for r in a:
             if "implementation" in r:
