@@ -1,5 +1,6 @@
 """Turns the JMH JSON results in bench/results into SUMMARY.md: times and the ratios the issues ask about."""
 import json
+import statistics
 import os
 import platform
 import sys
@@ -179,9 +180,20 @@ if ada:
     if os.path.exists(af):
         with open(af) as f:
             a = json.load(f)
+        # bench/adaptive/cpu_time.py: before and after in alternating JVMs, with the load average of the machine
         for r in a:
+            ld = (f", load {r['load_before']:.1f} -> {r['load_after']:.1f}" if "load_before" in r else "")
             lines.append(f"- {r['what']}: {r['wall_s']:.1f} s wall, **{r['cpu_s']:.1f} s process CPU** "
-                         f"({r['backend']})")
+                         f"({r['backend']}{ld})")
+        cpu = {}
+        for r in a:
+            if "implementation" in r:
+                cpu.setdefault(r["implementation"], []).append(r["cpu_s"])
+        if "before" in cpu and "after" in cpu:
+            b = statistics.median(cpu["before"])
+            n = statistics.median(cpu["after"])
+            lines.append(f"- process CPU, median of the repetitions: before {b:.1f} s, after {n:.1f} s: "
+                         f"**{b / n:.2f}x less**")
     lines.append("")
 fc = {}
 fcpath = os.path.join(out, "ForwardCpuTime.json")

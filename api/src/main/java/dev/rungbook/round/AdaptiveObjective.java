@@ -1,11 +1,12 @@
 package dev.rungbook.round;
 
+import dev.rungbook.internal.FloatPow;
 import dev.rungbook.internal.LinearAlgebra;
 import java.util.stream.IntStream;
 
 /**
- * The adaptive-rounding objective on a row-major weight {@code W} ({@code rows x cols}) and its gradient with
- * respect to the rounding variables {@code V}. Package-private; driven by {@link AdaptiveRounding}.
+ * The adaptive-rounding objective on a row-major weight {@code W} ({@code rows x cols}), its gradient with respect to
+ * the rounding variables {@code V}, and the fused Adam step. Package-private; driven by {@link AdaptiveRounding}.
  *
  * <p>Per weight, with scale {@code s}, zero point {@code z} and {@code base = floor(w / s + z)}:
  * {@code h(V) = clip(sigmoid(V) (zeta - gamma) + gamma, 0, 1)}, the soft code {@code clamp(base + h(V), qmin, qmax)}
@@ -14,10 +15,42 @@ import java.util.stream.IntStream;
  *   loss = (1/B) sum_x || f(W~ x + b) - f(W x + b) ||^2  +  lambda sum (1 - |2 h(V) - 1|^beta)
  * </pre>
  * the regulariser only when asked (not during warm-up). Clamps and clips pass no gradient outside their range.
+ *
+ * <p>Layout of the work: per step the two products over the whole batch run as single calls (native BLAS runs
+ * them on its own threads as it sees fit; several concurrent calls made its threads contend), then the weight rows,
+ * cut into blocks of a fixed size that depends only on the layer's shape ({@link #blockRows}, never on the number of
+ * threads), get one pass each over their weights in chunks of {@link #CHUNK} that stay in the core's cache:
+ * {@code h}, {@code dh/dV}, the regulariser and its gradient, the Adam update, the sigmoid of the new {@code V} and
+ * the next soft weight. Blocks run in parallel; their partial sums are added in block order, so a run gives the same
+ * bits on any number of cores. The per-weight state (sigmoid, soft-weight coefficients, Adam moments) is stored
+ * chunk by chunk, because Java 17's JIT vectorises a loop only when every array in it is indexed by the loop
+ * variable alone.
+ *
+ * <p>Arithmetic: float32 in short branch-free loops that Java 17's JIT vectorises (a loop with too much in it is not
+ * unrolled and runs scalar, where {@link Math#min}/{@link Math#max} are slow). Sums over weights (regulariser,
+ * undecided count) go into one float accumulator per chunk position, added up per block in double, because the JIT
+ * does not vectorise reductions. The sigmoid is a polynomial within {@code 4e-7} of the double-precision value; the
+ * power {@code |2h - 1|^(beta - 1)} comes from {@link FloatPow} (relative error below {@code 1e-5}).
  */
 final class AdaptiveObjective {
     static final double ZETA = 1.1;
     static final double GAMMA = -0.1;
+
+    /** Weights per unit of work of the element loops (their arrays stay in the core's first-level cache). */
+    static final int CHUNK = 1024;
+    /** Weights per block of rows of the element pass, at least. */
+    private static final int BLOCK_WEIGHTS = 1 << 16;
+    /** The clamp on V before the sigmoid: beyond ln 11 = 2.398 the rectified sigmoid is clipped to 0 or 1 anyway. */
+    private static final float V_CLAMP = 2.45f;
+    /** Turns a positive margin of at least one float32 step at these magnitudes into 1 (see {@link #chunk}). */
+    private static final float STEEP = 0x1p40f;
+    /** Gradients below this magnitude enter Adam as 0 (see {@link #chunk}). */
+    private static final float GRAD_FLUSH = 1e-18f;
+    /** Adam moments below this magnitude are set to 0 (see {@link #chunk}). */
+    private static final float MOMENT_FLUSH = 1e-28f;
+    private static final float FLUSH_STEEP = 0x1p100f;
+    private static final float ZG = (float) (ZETA - GAMMA);
+    private static final float G = (float) GAMMA;
 
     final int rows;
     final int cols;
@@ -27,24 +60,76 @@ final class AdaptiveObjective {
     private final float[] target;
     private final float[] bias;
     private final Calibration.Activation act;
+    private final float[] base;
     private final float[] scale;
     private final float[] zero;
-    private final float[] base;
     private final int qmin;
     private final int qmax;
     private final double lambda;
 
-    // Work arrays, reused across calls.
-    final float[] h;
+    // Per chunk (chunk-major, so that every element loop indexes all its arrays by the loop variable alone, which
+    // Java 17's JIT needs to vectorise): the soft weight is off + mul * h, mul = s where the code can move, else 0;
+    // sigmoid(V) of the last prepare/step; Adam's moments.
+    private final int[] chunkFrom;
+    private final int[] chunkLen;
+    private final float[][] off;
+    private final float[][] mul;
+    private final float[][] sig;
+    private float[][] m1;
+    private float[][] m2;
+    // Flat, for the products: the soft weight and the gradient with respect to it.
     private final float[] soft;
-    private final float[] dSoft;
-    private final float[] dReg;
-    private final float[] dH;
     private final float[] gw;
+    private final int blockRows;
+    private final Block[] blocks;
     private float[] xb = new float[0];
     private float[] yb = new float[0];
     private double regSum;
     private long undecidedCount;
+
+    /** Scratch and partial sums of one block of rows. */
+    private static final class Block {
+        final int r0;
+        final int r1;
+        final int c0;
+        final int c1;
+        final float[] vl = new float[CHUNK];
+        final float[] gl = new float[CHUNK];
+        final float[] sl = new float[CHUNK];
+        final float[] dh = new float[CHUNK];
+        final float[] hh = new float[CHUNK];
+        final float[] gr = new float[CHUNK];
+        final float[] ta = new float[CHUNK];
+        final float[] q = new float[CHUNK];
+        final float[] s1 = new float[CHUNK];
+        final float[] s2 = new float[CHUNK];
+        final float[] accU = new float[CHUNK];
+        final float[] accR = new float[CHUNK];
+        double reg;
+        long undecided;
+
+        Block(int r0, int r1, int c0, int c1) {
+            this.r0 = r0;
+            this.r1 = r1;
+            this.c0 = c0;
+            this.c1 = c1;
+        }
+    }
+
+    /** The Adam settings of one step, or null for a gradient only. */
+    static final class AdamStep {
+        final float k1;
+        final float k2;
+
+        /**
+         * Step number {@code t >= 1} with learning rate {@code lr}: {@code v -= (lr / c1) m / (sqrt(s) / sqrt(c2) +
+         * eps)} with {@code c1 = 1 - 0.9^t}, {@code c2 = 1 - 0.999^t} (bias corrections folded into two constants).
+         */
+        AdamStep(int t, double lr) {
+            this.k1 = (float) (lr / (1 - Math.pow(0.9, t)));
+            this.k2 = (float) (1 / Math.sqrt(1 - Math.pow(0.999, t)));
+        }
+    }
 
     /**
      * @param w the weight (not modified)
@@ -73,13 +158,54 @@ final class AdaptiveObjective {
             zero[e] = grid.zeroPoint(seg);
             base[e] = (float) Math.floor(w[e] / (double) scale[e] + zero[e]);
         }
-        h = new float[size];
+        blockRows = blockRows(rows, cols);
+        int nb = (rows + blockRows - 1) / blockRows;
+        blocks = new Block[nb];
+        int chunks = 0;
+        for (int b = 0; b < nb; b++) {
+            int r0 = b * blockRows;
+            int r1 = Math.min(rows, r0 + blockRows);
+            int c = (int) (((long) (r1 - r0) * cols + CHUNK - 1) / CHUNK);
+            blocks[b] = new Block(r0, r1, chunks, chunks + c);
+            chunks += c;
+        }
+        chunkFrom = new int[chunks];
+        chunkLen = new int[chunks];
+        off = new float[chunks][];
+        mul = new float[chunks][];
+        sig = new float[chunks][];
+        for (Block bk : blocks) {
+            int end = bk.r1 * cols;
+            for (int c = bk.c0; c < bk.c1; c++) {
+                int from = bk.r0 * cols + (c - bk.c0) * CHUNK;
+                int len = Math.min(CHUNK, end - from);
+                chunkFrom[c] = from;
+                chunkLen[c] = len;
+                off[c] = new float[len];
+                mul[c] = new float[len];
+                sig[c] = new float[len];
+                for (int j = 0; j < len; j++) {
+                    int e = from + j;
+                    // clamp(base + h, qmin, qmax) with h in [0, 1] is base + h inside the range, else a constant.
+                    if (base[e] >= qmin && base[e] + 1 <= qmax) {
+                        off[c][j] = scale[e] * (base[e] - zero[e]);
+                        mul[c][j] = scale[e];
+                    } else {
+                        off[c][j] = scale[e] * ((base[e] < qmin ? qmin : qmax) - zero[e]);
+                        mul[c][j] = 0f;
+                    }
+                }
+            }
+        }
         soft = new float[size];
-        dSoft = new float[size];
-        dReg = new float[size];
-        dH = new float[size];
         gw = new float[size];
         target = outputs(w, x, n);
+    }
+
+    /** Rows per block: at least {@link #BLOCK_WEIGHTS} weights, at most all rows. */
+    static int blockRows(int rows, int cols) {
+        long r = (BLOCK_WEIGHTS + cols - 1) / Math.max(1, cols);
+        return (int) Math.max(1, Math.min(rows, r));
     }
 
     /** {@code f(X W^T + b)} for the given row-major weights over all {@code n} samples ({@code n x rows}). */
@@ -122,6 +248,25 @@ final class AdaptiveObjective {
         return c;
     }
 
+    /** The codes rounded down ({@code floor(w / s + z)}), clamped to the code range. */
+    int[] downCodes() {
+        int[] c = new int[base.length];
+        for (int e = 0; e < base.length; e++) {
+            c[e] = (int) Math.max(qmin, Math.min(qmax, base[e]));
+        }
+        return c;
+    }
+
+    /** The code range. */
+    int qmin() {
+        return qmin;
+    }
+
+    /** The code range. */
+    int qmax() {
+        return qmax;
+    }
+
     /** The weights that codes stand for. */
     float[] values(int[] codes) {
         float[] w = new float[codes.length];
@@ -129,6 +274,16 @@ final class AdaptiveObjective {
             w[e] = (float) ((double) scale[e] * (codes[e] - (double) zero[e]));
         }
         return w;
+    }
+
+    /** {@code w / s + z} of weight {@code e}, in double. */
+    double scaledWeight(int e, float w) {
+        return w / (double) scale[e] + zero[e];
+    }
+
+    /** The value of one code of weight {@code e}, in double. */
+    double value(int e, int code) {
+        return (double) scale[e] * (code - (double) zero[e]);
     }
 
     /** The mean over all samples of {@code ||f(W~ x + b) - f(W x + b)||^2} for the weights {@code w}. */
@@ -142,238 +297,234 @@ final class AdaptiveObjective {
         return s / n;
     }
 
-    /** Weights per unit of work of the element loops (their arrays stay in the core's cache between loops). */
-    static final int CHUNK = 4096;
-    /** The clamp on V before the sigmoid: beyond ln 11 = 2.398 the rectified sigmoid is clipped to 0 or 1 anyway. */
-    private static final float V_CLAMP = 2.45f;
-    /** Turns a positive margin of at least one float32 step at these magnitudes into 1 (see {@link #softChunk}). */
-    private static final float STEEP = 0x1p40f;
+    /**
+     * Sets the state for {@code v}: {@code sigmoid(V)} and the soft weight, the same loops as the end of a step.
+     * A step needs it once before the first one; each step leaves the state of its updated {@code V}.
+     */
+    void prepare(float[] v) {
+        for (Block bk : blocks) {
+            for (int c = bk.c0; c < bk.c1; c++) {
+                System.arraycopy(v, chunkFrom[c], bk.vl, 0, chunkLen[c]);
+                sigmoidAndSoft(bk, c);
+            }
+        }
+    }
+
+    /** Starts Adam from zero moments. */
+    void resetMoments() {
+        m1 = new float[sig.length][];
+        m2 = new float[sig.length][];
+        for (int c = 0; c < sig.length; c++) {
+            m1[c] = new float[chunkLen[c]];
+            m2[c] = new float[chunkLen[c]];
+        }
+    }
 
     /**
-     * For weights {@code [from, to)}: {@code h(V)}, the soft weight, {@code dh/dV} (into {@link #dH}) and the soft
-     * weight's derivative {@code s dh/dV} where the code is inside its range (else 0), without branches: the
-     * masks "0 < h_raw < 1" and "qmin <= code <= qmax" are {@code clamp(2^40 * margin (+ 1), 0, 1)}, which is
-     * exactly 0 or 1 because every non-zero margin of these float32 values exceeds {@code 2^-40}.
-     *
-     * <p>{@code sigmoid(V) = 1 / (1 + e^-V)} with {@code e^-V = (e^(-V/8))^8} and {@code e^u} for {@code |u| <=
-     * 0.31} by its Taylor polynomial of degree 7 (truncation below {@code 2e-9}); in float32 the rectified sigmoid
-     * is within {@code 4e-7} of the double-precision value (measured over {@code |V| <= 2.4}).
+     * {@code sigmoid(V)} of chunk {@code c} (V in the block's {@code vl}) into {@link #sig} and the soft weight into
+     * {@link #soft}. {@code sigmoid(V) = 1 / (1 + e^-V)} with {@code e^-V = (e^(-V/8))^8} and {@code e^u} for
+     * {@code |u| <= 0.31} by its Taylor polynomial of degree 7 (truncation below {@code 2e-9}); in float32 the
+     * rectified sigmoid is within {@code 4e-7} of the double-precision value (measured over {@code |V| <= 2.4}).
      */
-    private void softChunk(float[] v, int from, int to, float qlo, float qhi) {
-        // Four short loops rather than one long one: the JIT vectorises each of them (a single loop with all of
-        // this is too large for it and runs scalar, where Math.min/max are slow). dH holds the sigmoid in between.
-        final float zg = (float) (ZETA - GAMMA);
-        final float g = (float) GAMMA;
-        for (int e = from; e < to; e++) {
-            float u = Math.max(-V_CLAMP, Math.min(V_CLAMP, v[e])) * -0.125f;
+    private void sigmoidAndSoft(Block bk, int c) {
+        int len = chunkLen[c];
+        float[] vl = bk.vl;
+        float[] sg = sig[c];
+        for (int j = 0; j < len; j++) {
+            float u = Math.max(-V_CLAMP, Math.min(V_CLAMP, vl[j])) * -0.125f;
             float p = 1f + u * (1f + u * (1f / 2 + u * (1f / 6 + u * (1f / 24 + u * (1f / 120 + u * (1f / 720
                     + u * (1f / 5040)))))));
             p = p * p;
             p = p * p;
             p = p * p;
-            dH[e] = 1f / (1f + p);
+            sg[j] = 1f / (1f + p);
         }
-        for (int e = from; e < to; e++) {
-            float sig = dH[e];
-            float raw = sig * zg + g;
-            h[e] = Math.max(0f, Math.min(1f, raw));
-            dH[e] = zg * sig * (1f - sig) * Math.max(0f, Math.min(1f, STEEP * Math.min(raw, 1f - raw)));
+        float[] of = off[c];
+        float[] mu = mul[c];
+        float[] sl = bk.sl;
+        for (int j = 0; j < len; j++) {
+            sl[j] = of[j] + mu[j] * Math.max(0f, Math.min(1f, sg[j] * ZG + G));
         }
-        for (int e = from; e < to; e++) {
-            soft[e] = scale[e] * (Math.max(qlo, Math.min(qhi, base[e] + h[e])) - zero[e]);
-        }
-        for (int e = from; e < to; e++) {
-            float code = base[e] + h[e];
-            dSoft[e] = scale[e] * dH[e] * Math.max(0f, Math.min(1f, STEEP * Math.min(code - qlo, qhi - code) + 1f));
-        }
-    }
-
-    /**
-     * The regulariser {@code sum (1 - |2h - 1|^beta)} over {@code [from, to)} and its gradient
-     * {@code -lambda beta |2h - 1|^(beta - 1) sign(2h - 1) 2 dh/dV} into {@link #dReg} ({@code regScale = -2 lambda
-     * beta}), the power read from {@code power}.
-     */
-    private double regulariserChunk(int from, int to, float[] power, float regScale) {
-        // The table look-up keeps this loop scalar; four partial sums keep the additions off one dependency chain.
-        double r0 = 0;
-        double r1 = 0;
-        double r2 = 0;
-        double r3 = 0;
-        float knots = POWER_KNOTS;
-        int e = from;
-        for (; e + 3 < to; e += 4) {
-            r0 += regulariserTerm(e, power, knots, regScale);
-            r1 += regulariserTerm(e + 1, power, knots, regScale);
-            r2 += regulariserTerm(e + 2, power, knots, regScale);
-            r3 += regulariserTerm(e + 3, power, knots, regScale);
-        }
-        for (; e < to; e++) {
-            r0 += regulariserTerm(e, power, knots, regScale);
-        }
-        return (r0 + r1) + (r2 + r3);
-    }
-
-    /** {@code 1 - |2h - 1|^beta} of weight {@code e}; its gradient into {@link #dReg}. */
-    private float regulariserTerm(int e, float[] power, float knots, float regScale) {
-        float t = 2 * h[e] - 1;
-        float a = Math.abs(t);
-        float pos = a * knots;
-        int i = Math.min((int) pos, POWER_KNOTS - 1);
-        float lo = power[i];
-        float p1 = lo + (pos - i) * (power[i + 1] - lo);
-        dReg[e] = regScale * Math.copySign(p1, t) * dH[e];
-        return 1 - a * p1;
-    }
-
-    /** As {@link #regulariserChunk} with the power {@code a^p} ({@code 0 <= p < 1}) by exp and log. */
-    private double exactRegulariserChunk(int from, int to, double p, float regScale) {
-        double rs = 0;
-        for (int e = from; e < to; e++) {
-            double t = 2.0 * h[e] - 1;
-            double a = Math.abs(t);
-            double p1 = a == 0 ? 0.0 : Math.exp(p * Math.log(a));
-            rs += 1 - a * p1;
-            dReg[e] = (float) (regScale * Math.copySign(p1, t) * dH[e]);
-        }
-        return rs;
-    }
-
-    /**
-     * The number of {@code h} values in {@code [from, to)} not within {@code 1e-3} of 0 or 1, counted without
-     * branches: {@code clamp(2^40 * min(h - 0.001, 0.999 - h), 0, 1)} is exactly 1 for those and 0 for the others
-     * (a positive margin here is at least one float32 step near 0.001, about {@code 1e-10}).
-     */
-    private long undecided(int from, int to) {
-        final float lo = 1e-3f;
-        final float hi = 1 - 1e-3f;
-        float u0 = 0;
-        float u1 = 0;
-        int e = from;
-        for (; e + 1 < to; e += 2) {
-            u0 += Math.max(0f, Math.min(1f, STEEP * Math.min(h[e] - lo, hi - h[e])));
-            u1 += Math.max(0f, Math.min(1f, STEEP * Math.min(h[e + 1] - lo, hi - h[e + 1])));
-        }
-        for (; e < to; e++) {
-            u0 += Math.max(0f, Math.min(1f, STEEP * Math.min(h[e] - lo, hi - h[e])));
-        }
-        return (long) u0 + (long) u1; // whole numbers below 2^24: exact in float
-    }
-
-    /** Share of {@code h} values (from the last call) not within {@code 1e-3} of 0 or 1. */
-    double undecidedShare() {
-        return h.length == 0 ? 0 : (double) undecidedCount / h.length;
-    }
-
-    /** Intervals of a table of {@code a^p} over {@code a} in {@code [0, 1]}. */
-    static final int POWER_KNOTS = 4096;
-
-    /**
-     * {@code a^p} at {@code a = i / POWER_KNOTS}, {@code i = 0..POWER_KNOTS}, for {@code p >= 1}. Linear
-     * interpolation errs by at most {@code step^2 / 8 * p (p - 1)}: below {@code 2.6e-6} for {@code p <= 19}.
-     * Values below {@code 1e-30} are stored as 0, so that no float32 result of the regulariser's gradient is
-     * subnormal (subnormal operands cost the processor a slow assist per operation).
-     */
-    static float[] powerTable(double p) {
-        float[] t = new float[POWER_KNOTS + 1];
-        for (int i = 1; i <= POWER_KNOTS; i++) {
-            double v = Math.pow(i / (double) POWER_KNOTS, p);
-            t[i] = v < 1e-30 ? 0f : (float) v;
-        }
-        return t;
-    }
-
-    private static void parallel(int rows, int cols, RowBody body) {
-        if ((long) rows * cols < 1 << 15 || rows < 2) {
-            body.run(0, rows);
-            return;
-        }
-        int tasks = Math.min(rows, Math.max(2, Math.min(8, Runtime.getRuntime().availableProcessors())));
-        IntStream.range(0, tasks).parallel().forEach(t -> body.run(rows * t / tasks, rows * (t + 1) / tasks));
-    }
-
-    @FunctionalInterface
-    private interface RowBody {
-        void run(int from, int to);
+        System.arraycopy(sl, 0, soft, chunkFrom[c], len);
     }
 
     /**
      * The loss on the batch {@code idx[0, count)} and its gradient with respect to {@code v} (written to
-     * {@code grad}); {@code h} is updated. {@code regularise} adds the rounding regulariser with exponent
-     * {@code beta}.
-     *
-     * <p>Arithmetic: float32, in branch-free loops over chunks of {@link #CHUNK} weights that the JIT vectorises
-     * (see {@link #softChunk}); the power {@code |2h - 1|^(beta - 1)} of the regulariser comes from a table made
-     * once per call for {@code beta >= 2} (see {@link #powerTable}), from {@link Math#exp} and {@link Math#log}
-     * below that.
+     * {@code grad}); {@code regularise} adds the rounding regulariser with exponent {@code beta}. The same code as
+     * {@link #step}, without the update.
      */
     double lossAndGradient(float[] v, int[] idx, int count, double beta, boolean regularise, float[] grad) {
-        int size = rows * cols;
-        int chunks = (size + CHUNK - 1) / CHUNK;
-        double[] regParts = new double[chunks];
-        long[] undecidedParts = new long[chunks];
-        float[] power = regularise && beta >= 2 ? powerTable(beta - 1) : null;
-        float regScale = (float) (-2 * lambda * beta);
-        float qlo = qmin;
-        float qhi = qmax;
-        parallel(chunks, CHUNK, (c0, c1) -> {
-            for (int c = c0; c < c1; c++) {
-                int from = c * CHUNK;
-                int to = Math.min(size, from + CHUNK);
-                softChunk(v, from, to, qlo, qhi);
-                if (regularise) {
-                    regParts[c] = power != null ? regulariserChunk(from, to, power, regScale)
-                            : exactRegulariserChunk(from, to, beta - 1, regScale);
-                }
-                undecidedParts[c] = undecided(from, to);
-            }
-        });
-        long und = 0;
-        for (long u : undecidedParts) {
-            und += u;
-        }
-        undecidedCount = und;
-        double reg = 0;
-        for (double p : regParts) {
-            reg += p;
-        }
-        if (regularise) {
-            regSum = reg;
-        }
+        prepare(v);
+        return run(v, idx, count, beta, regularise, grad, null);
+    }
+
+    /**
+     * One Adam step on {@code v} (in place) for the batch {@code idx[0, count)}; returns the loss before the step.
+     * The state must be that of {@code v} ({@link #prepare} before the first step).
+     */
+    double step(float[] v, int[] idx, int count, double beta, boolean regularise, AdamStep adam) {
+        return run(v, idx, count, beta, regularise, null, adam);
+    }
+
+    private double run(float[] v, int[] idx, int count, double beta, boolean regularise, float[] grad,
+            AdamStep adam) {
         if (xb.length < count * cols) {
             xb = new float[count * cols];
-            yb = new float[count * rows];
         }
         for (int i = 0; i < count; i++) {
             System.arraycopy(x, idx[i] * cols, xb, i * cols, cols);
         }
+        if (yb.length < count * rows) {
+            yb = new float[count * rows];
+        }
         la.sgemm(false, true, count, rows, cols, 1f, xb, 0, cols, soft, 0, cols, 0f, yb, 0, rows);
         double rec = 0;
         double g = 2.0 / count;
+        boolean relu = act == Calibration.Activation.RELU;
         for (int i = 0; i < count; i++) {
             int t = idx[i] * rows;
             for (int o = 0; o < rows; o++) {
                 double pre = yb[i * rows + o] + (bias == null ? 0.0 : bias[o]);
-                double p = act.apply(pre);
-                double d = p - target[t + o];
+                double out = act.apply(pre);
+                double d = out - target[t + o];
                 rec += d * d;
-                double slope = act == Calibration.Activation.RELU ? (pre > 0 ? 1 : 0) : 1;
+                double slope = relu ? (pre > 0 ? 1 : 0) : 1;
                 yb[i * rows + o] = (float) (g * d * slope); // now dLoss/dY~
             }
         }
         rec /= count;
         // dLoss/dW~ = G^T Xb  (rows x cols)
         la.sgemm(true, false, rows, cols, count, 1f, yb, 0, rows, xb, 0, cols, 0f, gw, 0, cols);
-        parallel(rows, cols, (r0, r1) -> {
-            for (int e = r0 * cols; e < r1 * cols; e++) {
-                grad[e] = gw[e] * dSoft[e];
-            }
-            if (regularise) {
-                for (int e = r0 * cols; e < r1 * cols; e++) {
-                    grad[e] += dReg[e];
-                }
-            }
-        });
+        float p = (float) (beta - 1);
+        float regScale = (float) (-2 * lambda * beta);
+        if (blocks.length == 1) {
+            block(blocks[0], v, regularise, p, regScale, grad, adam);
+        } else {
+            IntStream.range(0, blocks.length).parallel()
+                    .forEach(b -> block(blocks[b], v, regularise, p, regScale, grad, adam));
+        }
+        double reg = 0;
+        long und = 0;
+        for (Block bk : blocks) {
+            reg += bk.reg;
+            und += bk.undecided;
+        }
+        undecidedCount = und;
+        if (regularise) {
+            regSum = reg;
+        }
         return rec + (regularise ? lambda * reg : 0.0);
+    }
+
+    /** The element pass over one block of rows. */
+    private void block(Block bk, float[] v, boolean regularise, float p, float regScale, float[] grad,
+            AdamStep adam) {
+        java.util.Arrays.fill(bk.accU, 0f);
+        java.util.Arrays.fill(bk.accR, 0f);
+        for (int c = bk.c0; c < bk.c1; c++) {
+            chunk(bk, c, v, regularise, p, regScale, grad, adam);
+        }
+        double reg = 0;
+        double und = 0;
+        for (int j = 0; j < CHUNK; j++) {
+            reg += bk.accR[j];
+            und += bk.accU[j];
+        }
+        bk.reg = reg;
+        bk.undecided = (long) und;
+    }
+
+    /**
+     * Weights {@code [from, to)}: from {@code sigmoid(V)} the rectified {@code h}, {@code dh/dV} and the soft
+     * weight's derivative {@code mul dh/dV}, without branches: the mask "0 < h_raw < 1" is
+     * {@code clamp(2^40 * margin, 0, 1)}, exactly 0 or 1 because every non-zero margin of these float32 values exceeds
+     * {@code 2^-40}. Then the undecided count ({@code h} not within {@code 1e-3} of 0 or 1, the same mask), the
+     * gradient of the products, the regulariser {@code 1 - a^beta} with {@code a = |2h - 1|} and its gradient
+     * {@code -2 lambda beta sign(2h - 1) a^(beta - 1) dh/dV}, and either the gradient out or the Adam update with
+     * the next state.
+     */
+    private void chunk(Block bk, int c, float[] v, boolean regularise, float p, float regScale, float[] grad,
+            AdamStep adam) {
+        int from = chunkFrom[c];
+        int len = chunkLen[c];
+        float[] sg = sig[c];
+        float[] mu = mul[c];
+        float[] gl = bk.gl;
+        float[] dh = bk.dh;
+        float[] hh = bk.hh;
+        float[] gr = bk.gr;
+        float[] accU = bk.accU;
+        System.arraycopy(gw, from, gl, 0, len);
+        for (int j = 0; j < len; j++) {
+            float s = sg[j];
+            float raw = s * ZG + G;
+            hh[j] = Math.max(0f, Math.min(1f, raw));
+            dh[j] = ZG * s * (1f - s) * Math.max(0f, Math.min(1f, STEEP * Math.min(raw, 1f - raw)));
+        }
+        final float lo = 1e-3f;
+        final float hi = 1 - 1e-3f;
+        for (int j = 0; j < len; j++) {
+            accU[j] += Math.max(0f, Math.min(1f, STEEP * Math.min(hh[j] - lo, hi - hh[j])));
+        }
+        for (int j = 0; j < len; j++) {
+            gr[j] = gl[j] * (mu[j] * dh[j]);
+        }
+        if (regularise) {
+            float[] ta = bk.ta;
+            float[] q = bk.q;
+            float[] accR = bk.accR;
+            for (int j = 0; j < len; j++) {
+                ta[j] = Math.abs(2f * hh[j] - 1f);
+            }
+            FloatPow.pow(ta, p, q, len, bk.s1, bk.s2);
+            for (int j = 0; j < len; j++) {
+                accR[j] += 1f - ta[j] * q[j];
+            }
+            for (int j = 0; j < len; j++) {
+                // sign(2h - 1), exactly -1, 0 or 1 (a non-zero 2h - 1 is at least 2^-24 here)
+                float sign = Math.max(-1f, Math.min(1f, STEEP * (2f * hh[j] - 1f)));
+                gr[j] += regScale * sign * q[j] * dh[j];
+            }
+        }
+        if (adam == null) {
+            System.arraycopy(gr, 0, grad, from, len);
+            return;
+        }
+        final float b1 = 0.9f;
+        final float b2 = 0.999f;
+        final float eps = 1e-8f;
+        float[] a1 = m1[c];
+        float[] a2 = m2[c];
+        float k1 = adam.k1;
+        float k2 = adam.k2;
+        float[] vl = bk.vl;
+        System.arraycopy(v, from, vl, 0, len);
+        // Flush to zero: gradients below 1e-18 (their square would be subnormal) and moments below 1e-28 (a decided
+        // weight's first moment decays by 0.9 per step and, unflushed, sticks at the smallest subnormal, where every
+        // operation costs the processor a slow assist). Such values move V by less than lr * 1e-10 per step through
+        // Adam's eps = 1e-8. The masks are exactly 0 or 1, or a taper that keeps the product normal.
+        for (int j = 0; j < len; j++) {
+            float gi = gr[j];
+            gr[j] = gi * Math.max(0f, Math.min(1f, (Math.abs(gi) - GRAD_FLUSH) * FLUSH_STEEP));
+        }
+        for (int j = 0; j < len; j++) {
+            float gi = gr[j];
+            float a = b1 * a1[j] + (1 - b1) * gi;
+            float b = b2 * a2[j] + (1 - b2) * gi * gi;
+            a1[j] = a * Math.max(0f, Math.min(1f, (Math.abs(a) - MOMENT_FLUSH) * FLUSH_STEEP));
+            a2[j] = b * Math.max(0f, Math.min(1f, (b - MOMENT_FLUSH) * FLUSH_STEEP));
+        }
+        for (int j = 0; j < len; j++) {
+            vl[j] -= k1 * a1[j] / ((float) Math.sqrt(a2[j]) * k2 + eps);
+        }
+        System.arraycopy(vl, 0, v, from, len);
+        sigmoidAndSoft(bk, c);
+    }
+
+    /** Share of {@code h} values (from the last call) not within {@code 1e-3} of 0 or 1. */
+    double undecidedShare() {
+        int size = rows * cols;
+        return size == 0 ? 0 : (double) undecidedCount / size;
     }
 
     /** The regulariser sum (without lambda) of the last call that regularised. */

@@ -44,8 +44,9 @@ public interface Rounding {
     }
 
     /**
-     * Adaptive rounding (AdaRound, Nagel et al. 2020) learned from {@code calibration} with the published defaults;
-     * see {@link AdaptiveRounding} for the settings.
+     * Adaptive rounding (AdaRound, Nagel et al. 2020) learned from {@code calibration} with the published defaults,
+     * followed by our exact flip search ({@link AdaptiveRounding#polish(boolean) polish(false)} for the published
+     * method alone); see {@link AdaptiveRounding} for the settings.
      */
     static AdaptiveRounding adaptive(Calibration calibration) {
         return AdaptiveRounding.of(calibration);

@@ -29,6 +29,7 @@ class LearnedRoundingTest {
         int n = 128;
         StringBuilder log = new StringBuilder();
         double worstAdaptive = 0;
+        double worstBare = 0;
         double worstFeedback = 0;
         for (long seed = 1; seed <= 6; seed++) {
             float[] w = gaussian(seed, rows * cols, 0.5);
@@ -41,21 +42,122 @@ class LearnedRoundingTest {
             double near = outputError(w, g, nearest(g, w), rows, cols, x, n);
             double ef = outputError(w, g, ErrorFeedbackRounding.of(cal).activationOrder(true)
                     .codes(wt, g, Progress.silent()), rows, cols, x, n);
+            double bare = outputError(w, g, AdaptiveRounding.of(cal).seed(seed).polish(false)
+                    .codes(wt, g, Progress.silent()), rows, cols, x, n);
             double ada = outputError(w, g, AdaptiveRounding.of(cal).seed(seed).codes(wt, g, Progress.silent()), rows,
                     cols, x, n);
-            log.append(String.format("seed %d: optimum %.5g nearest %.5g error-feedback %.5g adaptive %.5g%n", seed,
-                    opt, near, ef, ada));
+            log.append(String.format("seed %d: optimum %.5g nearest %.5g error-feedback %.5g adaptive (published) "
+                    + "%.5g (%.3fx) adaptive (with flip search) %.5g (%.3fx)%n", seed, opt, near, ef, bare, bare / opt,
+                    ada, ada / opt));
             assertTrue(ef <= near * (1 + 1e-9), "error feedback worse than nearest:\n" + log);
-            assertTrue(ada <= near * (1 + 1e-9), "adaptive worse than nearest:\n" + log);
+            assertTrue(bare <= near * (1 + 1e-9), "adaptive (published) worse than nearest:\n" + log);
+            assertTrue(ada <= bare * (1 + 1e-12), "the flip search raised the error:\n" + log);
             worstAdaptive = Math.max(worstAdaptive, ada / opt);
+            worstBare = Math.max(worstBare, bare / opt);
             worstFeedback = Math.max(worstFeedback, ef / opt);
         }
+        System.out.print(log);
         // Error feedback (activation order) may beat the up/down optimum: it can move a weight by more than a step.
         assertTrue(worstFeedback <= 1.25, "error feedback within 25% of the optimum:\n" + log);
-        // The published adaptive rounding is a local relaxation; measured here it lands within a factor 2 of the
-        // optimum (the 5% is not reached on these cases; see the report).
-        assertTrue(worstAdaptive <= 2.0, "adaptive within a factor 2 of the optimum:\n" + log);
+        // The target, met with the flip search (the published method alone measured 1.0-1.9x here; logged).
+        assertTrue(worstAdaptive <= 1.05, "adaptive within 5% of the optimum:\n" + log);
+        assertTrue(worstBare <= 2.0, "the published method within a factor 2 of the optimum:\n" + log);
+    }
+
+    @Test
+    void withTheFlipSearchWithin5PercentOfTheOptimumOnOtherTinyShapesAndBits() {
+        // rows x cols, bits: a single row of 16 (pair moves), a 4 x 4 layer, 3 and 2 bits.
+        int[][] cases = {{1, 16, 3}, {4, 4, 3}, {2, 8, 2}, {1, 16, 4}};
+        StringBuilder log = new StringBuilder();
+        double worst = 0;
+        for (int c = 0; c < cases.length; c++) {
+            int rows = cases[c][0];
+            int cols = cases[c][1];
+            int n = 96;
+            long seed = 40 + c;
+            float[] w = gaussian(seed, rows * cols, 0.5);
+            float[] x = correlatedInputs(140 + seed, n, cols, Math.max(2, cols / 2));
+            GridAssignment g = perRowGrid(w, rows, cols, cases[c][2]);
+            Calibration cal = Calibration.of(tensor(x, n, cols));
+            Tensor wt = tensor(w, rows, cols);
+            // Source: exhaustive search over all 2^16 up/down roundings (the definition of the optimum).
+            double opt = bruteForceBest(w, g, rows, cols, x, n);
+            double near = outputError(w, g, nearest(g, w), rows, cols, x, n);
+            double bare = outputError(w, g, AdaptiveRounding.of(cal).polish(false).codes(wt, g, Progress.silent()),
+                    rows, cols, x, n);
+            double ada = outputError(w, g, AdaptiveRounding.of(cal).codes(wt, g, Progress.silent()), rows, cols, x,
+                    n);
+            log.append(String.format("%d x %d, %d bits: optimum %.5g nearest %.5g adaptive (published) %.5g (%.3fx) "
+                    + "with flip search %.5g (%.3fx)%n", rows, cols, cases[c][2], opt, near, bare, bare / opt, ada,
+                    ada / opt));
+            assertTrue(ada <= near * (1 + 1e-9), log.toString());
+            assertTrue(ada <= bare * (1 + 1e-12), log.toString());
+            worst = Math.max(worst, ada / opt);
+        }
         System.out.print(log);
+        assertTrue(worst <= 1.05, "within 5% of the optimum:\n" + log);
+    }
+
+    @Test
+    void theFlipSearchNeverRaisesTheOutputError() {
+        // Bias and ReLU (pre-activation search, kept only if the after-activation error is not higher), per-group and
+        // asymmetric grids, rows longer than the pair-move limit; the error is measured independently in double.
+        StringBuilder log = new StringBuilder();
+        int improved = 0;
+        for (int c = 0; c < 6; c++) {
+            int rows = 6;
+            int cols = c < 3 ? 24 : 96;
+            int n = 160;
+            boolean relu = c % 2 == 1;
+            float[] w = gaussian(200 + c, rows * cols, 0.5);
+            float[] x = correlatedInputs(300 + c, n, cols, 6);
+            float[] b = relu ? gaussian(400 + c, rows, 0.3) : null;
+            Calibration cal = Calibration.of(tensor(x, n, cols));
+            if (b != null) {
+                cal = cal.withBias(tensor(b, rows)).followedBy(Calibration.Activation.RELU);
+            }
+            Quantizer base = c % 3 == 0 ? Quantizer.linear(3).perGroup(1, 8)
+                    : c % 3 == 1 ? Quantizer.linear(4).asymmetric().perChannel(0) : Quantizer.linear(3).perChannel(0);
+            Tensor wt = tensor(w, rows, cols).withName("layer" + c);
+            AdaptiveRounding rule = AdaptiveRounding.of(cal).iterations(300).learningRate(1e-2).seed(c);
+            double[] withSearch = toDouble(base.rounding(rule).apply(wt).dequantized().toFloatArray());
+            double[] without = toDouble(base.rounding(rule.polish(false)).apply(wt).dequantized().toFloatArray());
+            double e1 = outputError(w, withSearch, rows, cols, x, n, b, relu);
+            double e0 = outputError(w, without, rows, cols, x, n, b, relu);
+            log.append(String.format("case %d (%s, %d cols%s): published %.6g, with flip search %.6g%n", c,
+                    base.label(), cols, relu ? ", bias + ReLU" : "", e0, e1));
+            assertTrue(e1 <= e0 * (1 + 1e-6), log.toString());
+            if (e1 < e0 * (1 - 1e-6)) {
+                improved++;
+            }
+        }
+        System.out.print(log);
+        assertTrue(improved >= 3, "the search should find lower errors in most cases:\n" + log);
+    }
+
+    @Test
+    void sameBitsOnOneThreadAsOnSeveral() throws Exception {
+        // 256 x 512: the element pass runs in two blocks of 128 rows, in parallel on the common pool; in a pool of
+        // one thread the same blocks run one after the other and must give the same bits.
+        int rows = 256;
+        int cols = 512;
+        int n = 192;
+        float[] w = gaussian(131, rows * cols, 0.05);
+        float[] x = correlatedInputs(132, n, cols, 16);
+        GridAssignment g = perRowGrid(w, rows, cols, 4);
+        AdaptiveRounding rule = AdaptiveRounding.of(Calibration.of(tensor(x, n, cols))).iterations(60)
+                .warmup(0.5);
+        assertEquals(128, AdaptiveObjective.blockRows(rows, cols));
+        RoundingRun many = rule.run(tensor(w, rows, cols), g, Progress.silent());
+        java.util.concurrent.ForkJoinPool one = new java.util.concurrent.ForkJoinPool(1);
+        try {
+            RoundingRun single = one.submit(() -> rule.run(tensor(w, rows, cols), g, Progress.silent())).get();
+            assertArrayEquals(many.lossHistory(), single.lossHistory());
+            assertArrayEquals(many.undecidedHistory(), single.undecidedHistory());
+            assertArrayEquals(many.codes(), single.codes());
+        } finally {
+            one.shutdown();
+        }
     }
 
     @Test
@@ -266,8 +368,14 @@ class LearnedRoundingTest {
         assertEquals(20.0, r.betaAt(2000));
         assertEquals(11.0, r.betaAt(6000), 1e-12);
         assertEquals(2.0 + 18.0 / 8000, r.betaAt(9999), 1e-12);
+        assertEquals("adaptive(iterations=10000, batch=32, lambda=0.01, beta=20->2, warmup=0.2, lr=0.001, seed=0, "
+                + "polish)", r.label());
+        // Our flip search is on by default and can be switched off, which leaves the published method alone.
+        assertTrue(r.polish());
+        assertFalse(r.polish(false).polish());
         assertEquals("adaptive(iterations=10000, batch=32, lambda=0.01, beta=20->2, warmup=0.2, lr=0.001, seed=0)",
-                r.label());
+                r.polish(false).label());
+        assertFalse(r.equals(r.polish(false)));
         assertEquals(r, AdaptiveRounding.of(Calibration.of(Tensor.of(new float[] {1, 2}, 1, 2))));
     }
 

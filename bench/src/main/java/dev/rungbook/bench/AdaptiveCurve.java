@@ -20,9 +20,11 @@ import java.util.SplittableRandom;
  * {@link LearnedRoundingBench}: a {@code rows x 512} weight of sd {@code 1/sqrt(512)}, 1024 correlated samples,
  * int4 per channel, published defaults with the given number of iterations, seed 0.
  *
- * <p>Usage: {@code java -cp bench/target/benchmarks.jar dev.rungbook.bench.AdaptiveCurve ROWS ITERATIONS OUT}.
- * The file has one line {@code loss undecided} per iteration, then {@code mse <weight MSE of the result>}; the
- * wall-clock and process CPU seconds of the run are printed.
+ * <p>Usage: {@code java -cp bench/target/benchmarks.jar dev.rungbook.bench.AdaptiveCurve ROWS ITERATIONS OUT
+ * [published]}; with {@code published} the flip search that follows the published method is off. The file has one
+ * line {@code loss undecided} per iteration, then {@code mse <weight MSE of the result>}; the wall-clock and process
+ * CPU seconds of the run are printed, then the output error {@code mean_x ||W x - W~ x||^2} over the calibration
+ * samples of the result and of rounding to nearest.
  */
 public final class AdaptiveCurve {
     private AdaptiveCurve() {
@@ -39,13 +41,17 @@ public final class AdaptiveCurve {
                 java.lang.management.ManagementFactory.getOperatingSystemMXBean();
         long c0 = os.getProcessCpuTime();
         long t0 = System.nanoTime();
-        Quantized q = Quantizer.linear(4).perChannel(0)
-                .rounding(AdaptiveRounding.of(cal).iterations(iterations).onFinish(r -> run[0] = r)).apply(w);
+        boolean published = args.length > 3 && args[3].equals("published");
+        Quantized q = Quantizer.linear(4).perChannel(0).rounding(AdaptiveRounding.of(cal).iterations(iterations)
+                .polish(!published).onFinish(r -> run[0] = r)).apply(w);
         double s = (System.nanoTime() - t0) / 1e9;
         double cpu = (os.getProcessCpuTime() - c0) / 1e9;
         // Process CPU time counts every thread (BLAS, fork-join workers) but not the waits for a core.
         System.out.printf("%d x 512, %d iterations: %.2f s wall, %.2f s process CPU (%s)%n", rows, iterations, s, cpu,
                 run[0].backend());
+        Quantized near = Quantizer.linear(4).perChannel(0).apply(w);
+        System.out.printf("output error %.6g (rounding to nearest %.6g)%s%n", outputError(w, q, cal),
+                outputError(w, near, cal), published ? ", published method alone" : ", with the flip search");
         StringBuilder b = new StringBuilder();
         double[] loss = run[0].lossHistory();
         double[] undecided = run[0].undecidedHistory();
@@ -56,6 +62,25 @@ public final class AdaptiveCurve {
         try (PrintWriter p = new PrintWriter(Files.newBufferedWriter(out, StandardCharsets.UTF_8))) {
             p.print(b);
         }
+    }
+
+    /** {@code mean_x ||W x - W~ x||^2} over the calibration samples, in double from float32 products. */
+    static double outputError(Tensor w, Quantized q, Calibration cal) {
+        int rows = w.shape()[0];
+        int cols = w.shape()[1];
+        float[] d = w.toFloatArray();
+        float[] wq = q.dequantized().toFloatArray();
+        for (int i = 0; i < d.length; i++) {
+            d[i] -= wq[i];
+        }
+        int n = cal.samples();
+        float[] y = new float[n * rows];
+        LinearAlgebra.instance().sgemm(false, true, n, rows, cols, cal.inputs().toFloatArray(), d, y);
+        double s = 0;
+        for (float v : y) {
+            s += (double) v * v;
+        }
+        return s / n;
     }
 
     static float[] gaussian(long seed, int n, double sd) {
