@@ -310,8 +310,10 @@ if st:
                  "below)." if loads else "")
     lines += ["", f"Four specs take **{four / one:.2f}x** the time of one (target: at most 2.5x); both finish under "
               f"-Xmx1g (target: peak heap under 1 GiB).{load_note}", "",
-              f"Run at {mib} MiB ({int(mib) // 32} tensors of 4096 x 4096) instead of the issue's 2 GiB unless "
-              "RUNGBOOK_STUDY_MIB=2048 is set: the work per tensor is the same. `Study` reads each tensor once, counts "
+              (f"Run at the issue's size, {mib} MiB ({int(mib) // 32} tensors of 4096 x 4096; "
+               "RUNGBOOK_STUDY_MIB=2048). " if int(mib) >= 2048 else
+               f"Run at {mib} MiB ({int(mib) // 32} tensors of 4096 x 4096) instead of the issue's 2 GiB unless "
+               "RUNGBOOK_STUDY_MIB=2048 is set: the work per tensor is the same. ") + "`Study` reads each tensor once, counts "
               "its values once for the KL histograms of all its specs (`ErrorReport.reference`), and feeds the specs "
               "to the cores from one queue of (tensor, spec) jobs over at most two tensors at a time, so no core waits "
               "at the end of a tensor; one spec runs on one thread. The ratio is set by the per-spec cost of the "
