@@ -150,8 +150,8 @@ if cpu:
     lines += quantize_section(
         "## Quantizing a 4096 x 4096 float32 matrix (thread CPU time)",
         "Medians of the benchmark thread's CPU time over interleaved repetitions (QuantizeCpuTime; every case is "
-        "single-threaded). Used as the headline because the shared machine's load (10 to 15 on 2 cores) made the "
-        "JMH wall-clock scores below swing by more than their own size. 'Vector API module': a JVM started with "
+        "single-threaded; latest run on a quiet machine, 2026-12-02). Used as the headline because on a shared machine "
+        "the JMH wall-clock scores below swing by more than their own size. 'Vector API module': a JVM started with "
         "`--add-modules jdk.incubator.vector`, where the min/max reductions and the fused error sums run on the "
         "incubating Vector API with the same results bit for bit. 'General path': the cases that the fused segment "
         "kernels serve (per-group int4, NF4, FP8 per channel) run again with the kernels switched off "
