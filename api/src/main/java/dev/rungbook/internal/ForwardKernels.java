@@ -36,10 +36,9 @@ public final class ForwardKernels {
         MethodHandle cp = null;
         int floatLanes = 8;
         int intLanes = 8;
-        if (ModuleLayer.boot().findModule("jdk.incubator.vector").isPresent()
-                && !"false".equals(System.getProperty("rungbook.vector"))) {
+        Class<?> c = Lanes.vectorClass("dev.rungbook.internal.VectorForward");
+        if (c != null) {
             try {
-                Class<?> c = Class.forName("dev.rungbook.internal.VectorForward");
                 MethodHandles.Lookup l = MethodHandles.lookup();
                 fp = l.findStatic(c, "floatPanel", MethodType.methodType(void.class, float[].class, int.class,
                         int.class, float[].class, int.class, float[].class, int.class, int.class, int[].class,

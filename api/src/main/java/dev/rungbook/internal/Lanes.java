@@ -23,10 +23,9 @@ public final class Lanes {
         MethodHandle mm = null;
         MethodHandle ma = null;
         MethodHandle es = null;
-        if (ModuleLayer.boot().findModule("jdk.incubator.vector").isPresent()
-                && !"false".equals(System.getProperty("rungbook.vector"))) {
+        Class<?> c = vectorClass("dev.rungbook.internal.VectorLanes");
+        if (c != null) {
             try {
-                Class<?> c = Class.forName("dev.rungbook.internal.VectorLanes");
                 MethodHandles.Lookup l = MethodHandles.lookup();
                 mm = l.findStatic(c, "minMax", MethodType.methodType(float[].class, float[].class, int.class,
                         int.class, float.class, float.class));
@@ -46,6 +45,23 @@ public final class Lanes {
     }
 
     private Lanes() {
+    }
+
+    /**
+     * The class {@code name} (one of the Vector API kernels of this package) when the JVM runs with
+     * {@code --add-modules jdk.incubator.vector} and the system property {@code rungbook.vector} is not
+     * {@code false}; otherwise, or if it does not load, null (the callers then run their plain loops).
+     */
+    static Class<?> vectorClass(String name) {
+        if (!ModuleLayer.boot().findModule("jdk.incubator.vector").isPresent()
+                || "false".equals(System.getProperty("rungbook.vector"))) {
+            return null;
+        }
+        try {
+            return Class.forName(name);
+        } catch (ReflectiveOperationException | LinkageError e) {
+            return null;
+        }
     }
 
     /** Rethrows what a vector method threw: unchecked throwables as they are (it declares no checked ones). */
