@@ -24,11 +24,13 @@ package dev.rungbook.internal;
  * see {@link #errorSums}) and in double across chunks, then multiplied by {@code scale^2} in double (relative
  * rounding error below about {@code 1e-5}, typically {@code 1e-7}). MSE = {@code sqErr / cols}; SQNR = {@code 10 log10(sqSignal / sqErr)}.
  *
- * <p>The loops are written for the JIT: the min/max reduction, the rounding (the magic-number trick
- * {@code (v + 1.5 * 2^23) - 1.5 * 2^23}, exact round-half-even for {@code |v| < 2^22}), the clamp and the
- * dequantization are separate simple loops over a row (which stays in L1); the min/max reduction, the float-to-int
- * code store and the sums stay scalar in Java 17 (the sums as eight independent chains). The {@code dequantOut}
- * array doubles as scratch for the float codes.
+ * <p>The rounding is the magic-number trick {@code (v + 1.5 * 2^23) - 1.5 * 2^23}, exact round-half-even for
+ * {@code |v| < 2^22}. With the Vector API module ({@link Lanes}) each row takes two passes: its min/max, then one
+ * pass that rounds, clamps, stores the narrowed codes and the dequantized values and adds the sums, eight lanes at a
+ * time, with the same float operations in the same order as the plain loops, so the same bits. Without the module
+ * the loops are written for Java 17's JIT: the rounding with the clamp and the dequantization are separate simple
+ * loops over a row (which stays in L1); the min/max reduction, the float-to-int code store and the sums stay scalar
+ * (the sums as eight independent chains). The {@code dequantOut} array doubles as scratch for the float codes.
  */
 public final class Fused {
     private static final float MAGIC = 12582912f; // 1.5 * 2^23
@@ -57,16 +59,9 @@ public final class Fused {
     public static void quantizeRows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scalesOut,
             int[] zeroPointsOut, byte[] codesOut, float[] dequantOut, double[] sqErrOut, double[] sqSignalOut) {
         Checks.inRange(bits, 2, 8, "bits for byte codes");
-        int n = checkSizes(w, rows, cols, scalesOut, zeroPointsOut, codesOut.length, dequantOut, sqErrOut,
-                sqSignalOut);
-        assert n == rows * cols;
-        for (int r = 0; r < rows; r++) {
-            int off = r * cols;
-            float scale = rowParams(w, off, cols, r, bits, symmetric, scalesOut, zeroPointsOut);
-            float zp = zeroPointsOut[r];
-            roundRow(w, off, cols, bits, symmetric, scale, zp, dequantOut);
-            dequantRow(w, off, cols, scale, zp, dequantOut, codesOut, null, r, sqErrOut, sqSignalOut);
-        }
+        checkSizes(w, rows, cols, scalesOut, zeroPointsOut, codesOut.length, dequantOut, sqErrOut, sqSignalOut);
+        rows(w, rows, cols, bits, symmetric, scalesOut, zeroPointsOut, codesOut, null, dequantOut, sqErrOut,
+                sqSignalOut, true);
     }
 
     /**
@@ -77,12 +72,42 @@ public final class Fused {
             int[] zeroPointsOut, short[] codesOut, float[] dequantOut, double[] sqErrOut, double[] sqSignalOut) {
         Checks.inRange(bits, 2, 16, "bits for short codes");
         checkSizes(w, rows, cols, scalesOut, zeroPointsOut, codesOut.length, dequantOut, sqErrOut, sqSignalOut);
+        rows(w, rows, cols, bits, symmetric, scalesOut, zeroPointsOut, null, codesOut, dequantOut, sqErrOut,
+                sqSignalOut, true);
+    }
+
+    /**
+     * The rows, into {@code bytes} or {@code shorts} (one is null); each row's pass after its min/max runs on the
+     * Vector API when {@code vector} is true and the module is there ({@link Lanes#vectorQuantizeRow}), else as the
+     * plain loops. Tests call it with {@code vector} false for the reference.
+     */
+    static void rows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scales, int[] zps,
+            byte[] bytes, short[] shorts, float[] dq, double[] sqErr, double[] sqSignal, boolean vector) {
+        if (vector && Lanes.vectorQuantizeRows(w, rows, cols, bits, symmetric, scales, zps, bytes, shorts, dq, sqErr,
+                sqSignal)) {
+            return;
+        }
+        float hi = (1 << (bits - 1)) - 1;
+        float lo = symmetric ? -hi : -hi - 1;
+        boolean wantSums = sqErr != null || sqSignal != null;
+        double[] sums = wantSums ? new double[2] : null;
         for (int r = 0; r < rows; r++) {
             int off = r * cols;
-            float scale = rowParams(w, off, cols, r, bits, symmetric, scalesOut, zeroPointsOut);
-            float zp = zeroPointsOut[r];
-            roundRow(w, off, cols, bits, symmetric, scale, zp, dequantOut);
-            dequantRow(w, off, cols, scale, zp, dequantOut, null, codesOut, r, sqErrOut, sqSignalOut);
+            float[] mm = vector ? Lanes.minMax(w, off, off + cols, 0f, 0f)
+                    : Lanes.scalarMinMax(w, off, off + cols, 0f, 0f);
+            float scale = rowParams(w, off, cols, r, bits, symmetric, mm[0], mm[1], scales, zps);
+            float zp = zps[r];
+            roundRow(w, off, cols, lo, hi, scale, zp, dq);
+            dequantRow(w, off, cols, scale, zp, dq, bytes, shorts, sums, vector);
+            if (wantSums) {
+                double s2 = (double) scale * scale;
+                if (sqErr != null) {
+                    sqErr[r] = sums[0] * s2;
+                }
+                if (sqSignal != null) {
+                    sqSignal[r] = sums[1] * s2;
+                }
+            }
         }
     }
 
@@ -102,12 +127,13 @@ public final class Fused {
         return (int) n;
     }
 
-    /** Min/max of the row, then scale and zero point; returns the scale. */
-    private static float rowParams(float[] w, int off, int cols, int r, int bits, boolean symmetric, float[] scales,
-            int[] zps) {
-        float[] mm = Lanes.minMax(w, off, off + cols, 0f, 0f);
-        float mn = mm[0];
-        float mx = mm[1];
+    /**
+     * The scale and zero point of row {@code r} from its min/max (taken together with 0) into {@code scales[r]} and
+     * {@code zps[r]}; returns the scale. A non-finite min or max (NaN or infinity in the row) is reported with the
+     * first bad value's row, column and index.
+     */
+    static float rowParams(float[] w, int off, int cols, int r, int bits, boolean symmetric, float mn, float mx,
+            float[] scales, int[] zps) {
         if (!Float.isFinite(mn) || !Float.isFinite(mx)) { // Math.min/max propagate NaN
             for (int i = off; i < off + cols; i++) {
                 if (!Float.isFinite(w[i])) {
@@ -140,10 +166,8 @@ public final class Fused {
     }
 
     /** Float codes {@code clamp(rint(x / scale) + zp)} into {@code out}. */
-    private static void roundRow(float[] w, int off, int cols, int bits, boolean symmetric, float scale, float zp,
+    private static void roundRow(float[] w, int off, int cols, float lo, float hi, float scale, float zp,
             float[] out) {
-        float hi = (1 << (bits - 1)) - 1;
-        float lo = symmetric ? -hi : -hi - 1;
         for (int i = off, end = off + cols; i < end; i++) {
             float t = ((w[i] / scale + MAGIC) - MAGIC) + zp;
             out[i] = Math.max(lo, Math.min(hi, t));
@@ -152,10 +176,11 @@ public final class Fused {
 
     /**
      * Stores the codes (into whichever of {@code bytes} and {@code shorts} is non-null), replaces the float codes by
-     * dequantized values and accumulates the error and signal sums of the row.
+     * dequantized values and, when {@code sums} is non-null, puts the row's error and signal sums in steps of the
+     * scale into {@code sums[0]} and {@code sums[1]}.
      */
     private static void dequantRow(float[] w, int off, int cols, float scale, float zp, float[] dq, byte[] bytes,
-            short[] shorts, int r, double[] sqErr, double[] sqSignal) {
+            short[] shorts, double[] sums, boolean vector) {
         int end = off + cols;
         if (bytes != null) {
             for (int i = off; i < end; i++) {
@@ -169,18 +194,12 @@ public final class Fused {
         for (int i = off; i < end; i++) {
             dq[i] = (dq[i] - zp) * scale;
         }
-        if (sqErr == null && sqSignal == null) {
-            return;
-        }
-        // Sums run on values measured in steps (x / scale), so float squares neither overflow nor underflow.
-        float inv = 1f / scale;
-        double[] sums = errorSums(w, dq, off, end, inv);
-        double s2 = (double) scale * scale;
-        if (sqErr != null) {
-            sqErr[r] = sums[0] * s2;
-        }
-        if (sqSignal != null) {
-            sqSignal[r] = sums[1] * s2;
+        if (sums != null) {
+            // Sums run on values measured in steps (x / scale), so float squares neither overflow nor underflow.
+            float inv = 1f / scale;
+            double[] es = vector ? errorSums(w, dq, off, end, inv) : scalarErrorSums(w, dq, off, end, inv);
+            sums[0] = es[0];
+            sums[1] = es[1];
         }
     }
 

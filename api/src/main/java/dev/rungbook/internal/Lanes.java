@@ -12,17 +12,20 @@ import java.lang.invoke.MethodType;
  * the same bits. Java 17's JIT does not vectorise these reductions; when the JVM runs with
  * {@code --add-modules jdk.incubator.vector} (and the system property {@code rungbook.vector} is not
  * {@code false}) they run on the incubating Vector API instead ({@link #vectorised()}), with the same results; so
- * do the error sums of {@link Fused}, whose summation order is fixed to eight lanes for that reason.
+ * do {@link Fused}'s rows (codes, dequantized values and error sums in one pass), whose summation order is fixed
+ * to eight lanes for that reason.
  */
 public final class Lanes {
     private static final MethodHandle MIN_MAX;
     private static final MethodHandle MAX_ABS;
     private static final MethodHandle ERROR_SUMS;
+    private static final MethodHandle QUANTIZE_ROWS;
 
     static {
         MethodHandle mm = null;
         MethodHandle ma = null;
         MethodHandle es = null;
+        MethodHandle qr = null;
         Class<?> c = vectorClass("dev.rungbook.internal.VectorLanes");
         if (c != null) {
             try {
@@ -33,15 +36,20 @@ public final class Lanes {
                         int.class));
                 es = l.findStatic(c, "errorSums", MethodType.methodType(double[].class, float[].class,
                         float[].class, int.class, int.class, float.class));
+                qr = l.findStatic(c, "quantizeRows", MethodType.methodType(void.class, float[].class, int.class,
+                        int.class, int.class, boolean.class, float[].class, int[].class, byte[].class, short[].class,
+                        float[].class, double[].class, double[].class));
             } catch (ReflectiveOperationException | LinkageError e) {
                 mm = null;
                 ma = null;
                 es = null;
+                qr = null;
             }
         }
         MIN_MAX = mm;
         MAX_ABS = ma;
         ERROR_SUMS = es;
+        QUANTIZE_ROWS = qr;
     }
 
     private Lanes() {
@@ -127,6 +135,24 @@ public final class Lanes {
         }
         try {
             return (double[]) ERROR_SUMS.invokeExact(w, d, from, to, inv);
+        } catch (Throwable e) {
+            throw unchecked(e);
+        }
+    }
+
+    /**
+     * The Vector API form of {@code Fused}'s rows (same results; see {@code VectorLanes.quantizeRows}); false, doing
+     * nothing, on the scalar path.
+     */
+    static boolean vectorQuantizeRows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scales,
+            int[] zps, byte[] bytes, short[] shorts, float[] dq, double[] sqErr, double[] sqSignal) {
+        if (QUANTIZE_ROWS == null) {
+            return false;
+        }
+        try {
+            QUANTIZE_ROWS.invokeExact(w, rows, cols, bits, symmetric, scales, zps, bytes, shorts, dq, sqErr,
+                    sqSignal);
+            return true;
         } catch (Throwable e) {
             throw unchecked(e);
         }

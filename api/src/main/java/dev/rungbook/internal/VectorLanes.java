@@ -1,6 +1,10 @@
 package dev.rungbook.internal;
 
+import java.util.Arrays;
+import jdk.incubator.vector.ByteVector;
 import jdk.incubator.vector.FloatVector;
+import jdk.incubator.vector.IntVector;
+import jdk.incubator.vector.ShortVector;
 import jdk.incubator.vector.VectorOperators;
 import jdk.incubator.vector.VectorSpecies;
 
@@ -55,6 +59,114 @@ final class VectorLanes {
             s += ((ls[0] + ls[1]) + (ls[2] + ls[3])) + ((ls[4] + ls[5]) + (ls[6] + ls[7]));
         }
         return new double[] {e, s};
+    }
+
+    private static final float MAGIC = 12582912f; // 1.5 * 2^23, as in Fused
+    private static final int MAGIC_BITS = Float.floatToRawIntBits(MAGIC);
+
+    /**
+     * {@code Fused.quantizeRows} with eight-lane vectors, the same bits as its plain loops. Each row takes one pass
+     * that rounds, clamps, narrows and stores the codes, stores the dequantized values, adds the error and signal
+     * sums in the order of {@link #errorSums} and, on the side, takes the min/max of the next row, whose load from
+     * memory then overlaps this row's arithmetic (a minimum or maximum does not depend on the order of the values).
+     * Only the first row has a pass of its own for its min/max.
+     *
+     * <p>Where the plain loops round with {@code (v + MAGIC) - MAGIC} and clamp in float, this pass reads the
+     * rounded integer from the bits of {@code v + MAGIC} (for {@code |v| < 2^22} they are {@code MAGIC}'s plus the
+     * integer), adds the zero point and clamps in int lanes, and gets the float code back by the same trick in
+     * reverse: exact integers throughout, so the same codes and, from them, the same dequantized floats. (Java 17's
+     * compiler has no fast float-to-int lane conversion, and its float lane min/max are several instructions each.)
+     */
+    static void quantizeRows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scales, int[] zps,
+            byte[] bytes, short[] shorts, float[] dq, double[] sqErr, double[] sqSignal) {
+        int ihi = (1 << (bits - 1)) - 1;
+        int ilo = symmetric ? -ihi : -ihi - 1;
+        float[] mm = minMax(w, 0, cols, 0f, 0f);
+        float[] le = new float[8];
+        float[] ls = new float[8];
+        float[] nmn = new float[8];
+        float[] nmx = new float[8];
+        for (int r = 0; r < rows; r++) {
+            int off = r * cols;
+            float scale = Fused.rowParams(w, off, cols, r, bits, symmetric, mm[0], mm[1], scales, zps);
+            int z = zps[r];
+            float zp = z;
+            float inv = 1f / scale;
+            // the next row is read at index i + ahead; on the last row it reads its own values again, unused
+            int ahead = r + 1 < rows ? cols : 0;
+            Arrays.fill(nmn, 0f);
+            Arrays.fill(nmx, 0f);
+            float tmn = 0f;
+            float tmx = 0f;
+            double e = 0;
+            double s = 0;
+            int to = off + cols;
+            for (int c = off; c < to; c += CHUNK) {
+                int stop = Math.min(to, c + CHUNK);
+                FloatVector ve = FloatVector.zero(S8);
+                FloatVector vs = FloatVector.zero(S8);
+                // the next row's running min/max live in arrays between chunks: a vector carried around the outer
+                // loop would be boxed by the compiler
+                FloatVector mn = FloatVector.fromArray(S8, nmn, 0);
+                FloatVector mx = FloatVector.fromArray(S8, nmx, 0);
+                int i = c;
+                for (; i + 8 <= stop; i += 8) {
+                    FloatVector x = FloatVector.fromArray(S8, w, i);
+                    FloatVector y = FloatVector.fromArray(S8, w, i + ahead);
+                    mn = mn.min(y);
+                    mx = mx.max(y);
+                    IntVector q = ((IntVector) x.div(scale).add(MAGIC).viewAsIntegralLanes()).add(z - MAGIC_BITS)
+                            .max(ilo).min(ihi);
+                    if (bytes != null) {
+                        ((ByteVector) q.convertShape(VectorOperators.I2B, ByteVector.SPECIES_64, 0))
+                                .intoArray(bytes, i);
+                    } else {
+                        ((ShortVector) q.convertShape(VectorOperators.I2S, ShortVector.SPECIES_128, 0))
+                                .intoArray(shorts, i);
+                    }
+                    // (code - zp) as an exact float, then times the scale: the plain loops' (t - zp) * scale
+                    FloatVector d = ((FloatVector) q.add(MAGIC_BITS - z).viewAsFloatingLanes()).sub(MAGIC).mul(scale);
+                    d.intoArray(dq, i);
+                    FloatVector dd = x.sub(d).mul(inv);
+                    FloatVector u = x.mul(inv);
+                    ve = ve.add(dd.mul(dd));
+                    vs = vs.add(u.mul(u));
+                }
+                mn.intoArray(nmn, 0);
+                mx.intoArray(nmx, 0);
+                ve.intoArray(le, 0);
+                vs.intoArray(ls, 0);
+                for (int j = 0; i < stop; i++, j++) {
+                    float x = w[i];
+                    float y = w[i + ahead];
+                    tmn = Math.min(tmn, y);
+                    tmx = Math.max(tmx, y);
+                    float t = Math.max((float) ilo, Math.min((float) ihi, ((x / scale + MAGIC) - MAGIC) + zp));
+                    if (bytes != null) {
+                        bytes[i] = (byte) (int) t;
+                    } else {
+                        shorts[i] = (short) (int) t;
+                    }
+                    float d = (t - zp) * scale;
+                    dq[i] = d;
+                    float dd = (x - d) * inv;
+                    float u = x * inv;
+                    le[j] += dd * dd;
+                    ls[j] += u * u;
+                }
+                e += ((le[0] + le[1]) + (le[2] + le[3])) + ((le[4] + le[5]) + (le[6] + le[7]));
+                s += ((ls[0] + ls[1]) + (ls[2] + ls[3])) + ((ls[4] + ls[5]) + (ls[6] + ls[7]));
+            }
+            double s2 = (double) scale * scale;
+            if (sqErr != null) {
+                sqErr[r] = e * s2;
+            }
+            if (sqSignal != null) {
+                sqSignal[r] = s * s2;
+            }
+            mm[0] = Math.min(tmn, FloatVector.fromArray(S8, nmn, 0).reduceLanes(VectorOperators.MIN));
+            mm[1] = Math.max(tmx, FloatVector.fromArray(S8, nmx, 0).reduceLanes(VectorOperators.MAX));
+        }
     }
 
     static float[] minMax(float[] v, int from, int to, float lo, float hi) {
