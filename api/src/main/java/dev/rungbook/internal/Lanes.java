@@ -20,12 +20,14 @@ public final class Lanes {
     private static final MethodHandle MAX_ABS;
     private static final MethodHandle ERROR_SUMS;
     private static final MethodHandle QUANTIZE_ROWS;
+    private static final MethodHandle PAIR_SUMS;
 
     static {
         MethodHandle mm = null;
         MethodHandle ma = null;
         MethodHandle es = null;
         MethodHandle qr = null;
+        MethodHandle ps = null;
         Class<?> c = vectorClass("dev.rungbook.internal.VectorLanes");
         if (c != null) {
             try {
@@ -39,17 +41,21 @@ public final class Lanes {
                 qr = l.findStatic(c, "quantizeRows", MethodType.methodType(void.class, float[].class, int.class,
                         int.class, int.class, boolean.class, float[].class, int[].class, byte[].class, short[].class,
                         float[].class, double[].class, double[].class));
+                ps = l.findStatic(c, "pairSums", MethodType.methodType(double[].class, float[].class,
+                        float[].class));
             } catch (ReflectiveOperationException | LinkageError e) {
                 mm = null;
                 ma = null;
                 es = null;
                 qr = null;
+                ps = null;
             }
         }
         MIN_MAX = mm;
         MAX_ABS = ma;
         ERROR_SUMS = es;
         QUANTIZE_ROWS = qr;
+        PAIR_SUMS = ps;
     }
 
     private Lanes() {
@@ -156,6 +162,135 @@ public final class Lanes {
         } catch (Throwable e) {
             throw unchecked(e);
         }
+    }
+
+    /** The number of entries of {@link #pairSums}'s result. */
+    public static final int PAIR_SUMS_LENGTH = 10;
+
+    /**
+     * The sums behind an error report of {@code y} against {@code x} (arrays of equal length), with {@code e = y - x}
+     * in double: {@code {sum e^2, sum |e|, max |e|, sum x^2, sum y^2, sum x*y, min x, max x, min y, max y}}. The sums
+     * are taken in double in four lanes: lane {@code j} adds the terms of the elements {@code i = j mod 4} of the
+     * first {@code n - n mod 4} in order, then the last {@code n mod 4} elements go to lanes 0, 1, 2 in order, and
+     * the lanes are added as {@code (l0 + l1) + (l2 + l3)}; four independent chains instead of one, so the loop is
+     * not held up by the latency of its additions. Minimum and maximum compare with {@code <} and {@code >} (so
+     * {@code -0.0} and {@code 0.0} are not told apart and NaN is never picked, callers check the sums for
+     * finiteness); with no values they are {@code +Infinity, -Infinity, +Infinity, -Infinity}. With the Vector API
+     * module the same order runs in four-lane double vectors, with the same results bit for bit.
+     */
+    public static double[] pairSums(float[] x, float[] y) {
+        if (x.length != y.length) {
+            throw new IllegalArgumentException("arrays of " + x.length + " and " + y.length + " values");
+        }
+        if (PAIR_SUMS != null) {
+            try {
+                return (double[]) PAIR_SUMS.invokeExact(x, y);
+            } catch (Throwable e) {
+                throw unchecked(e);
+            }
+        }
+        return scalarPairSums(x, y);
+    }
+
+    /** {@link #pairSums} as plain loops (the fallback, and the reference for tests). */
+    static double[] scalarPairSums(float[] x, float[] y) {
+        double e0 = 0, e1 = 0, e2 = 0, e3 = 0;
+        double a0 = 0, a1 = 0, a2 = 0, a3 = 0;
+        double x0 = 0, x1 = 0, x2 = 0, x3 = 0;
+        double y0 = 0, y1 = 0, y2 = 0, y3 = 0;
+        double p0 = 0, p1 = 0, p2 = 0, p3 = 0;
+        double m = 0;
+        float xlo = Float.POSITIVE_INFINITY;
+        float xhi = Float.NEGATIVE_INFINITY;
+        float ylo = Float.POSITIVE_INFINITY;
+        float yhi = Float.NEGATIVE_INFINITY;
+        int n = x.length;
+        int body = n - n % 4;
+        for (int i = 0; i < body; i += 4) {
+            float a = x[i];
+            float b = y[i];
+            xlo = a < xlo ? a : xlo;
+            xhi = a > xhi ? a : xhi;
+            ylo = b < ylo ? b : ylo;
+            yhi = b > yhi ? b : yhi;
+            double e = (double) b - a;
+            double ae = Math.abs(e);
+            e0 += e * e;
+            a0 += ae;
+            m = ae > m ? ae : m;
+            x0 += (double) a * a;
+            y0 += (double) b * b;
+            p0 += (double) a * b;
+            a = x[i + 1];
+            b = y[i + 1];
+            xlo = a < xlo ? a : xlo;
+            xhi = a > xhi ? a : xhi;
+            ylo = b < ylo ? b : ylo;
+            yhi = b > yhi ? b : yhi;
+            e = (double) b - a;
+            ae = Math.abs(e);
+            e1 += e * e;
+            a1 += ae;
+            m = ae > m ? ae : m;
+            x1 += (double) a * a;
+            y1 += (double) b * b;
+            p1 += (double) a * b;
+            a = x[i + 2];
+            b = y[i + 2];
+            xlo = a < xlo ? a : xlo;
+            xhi = a > xhi ? a : xhi;
+            ylo = b < ylo ? b : ylo;
+            yhi = b > yhi ? b : yhi;
+            e = (double) b - a;
+            ae = Math.abs(e);
+            e2 += e * e;
+            a2 += ae;
+            m = ae > m ? ae : m;
+            x2 += (double) a * a;
+            y2 += (double) b * b;
+            p2 += (double) a * b;
+            a = x[i + 3];
+            b = y[i + 3];
+            xlo = a < xlo ? a : xlo;
+            xhi = a > xhi ? a : xhi;
+            ylo = b < ylo ? b : ylo;
+            yhi = b > yhi ? b : yhi;
+            e = (double) b - a;
+            ae = Math.abs(e);
+            e3 += e * e;
+            a3 += ae;
+            m = ae > m ? ae : m;
+            x3 += (double) a * a;
+            y3 += (double) b * b;
+            p3 += (double) a * b;
+        }
+        double[] le = {e0, e1, e2, e3};
+        double[] la = {a0, a1, a2, a3};
+        double[] lx = {x0, x1, x2, x3};
+        double[] ly = {y0, y1, y2, y3};
+        double[] lp = {p0, p1, p2, p3};
+        for (int i = body, j = 0; i < n; i++, j++) {
+            float a = x[i];
+            float b = y[i];
+            xlo = a < xlo ? a : xlo;
+            xhi = a > xhi ? a : xhi;
+            ylo = b < ylo ? b : ylo;
+            yhi = b > yhi ? b : yhi;
+            double e = (double) b - a;
+            double ae = Math.abs(e);
+            le[j] += e * e;
+            la[j] += ae;
+            m = ae > m ? ae : m;
+            lx[j] += (double) a * a;
+            ly[j] += (double) b * b;
+            lp[j] += (double) a * b;
+        }
+        return new double[] {lanes(le), lanes(la), m, lanes(lx), lanes(ly), lanes(lp), xlo, xhi, ylo, yhi};
+    }
+
+    /** The four lanes of a {@link #pairSums} sum, added in its order. */
+    static double lanes(double[] l) {
+        return (l[0] + l[1]) + (l[2] + l[3]);
     }
 
     /** {@link #maxAbs} as a plain loop. */

@@ -2,6 +2,7 @@ package dev.rungbook.internal;
 
 import java.util.Arrays;
 import jdk.incubator.vector.ByteVector;
+import jdk.incubator.vector.DoubleVector;
 import jdk.incubator.vector.FloatVector;
 import jdk.incubator.vector.IntVector;
 import jdk.incubator.vector.ShortVector;
@@ -167,6 +168,89 @@ final class VectorLanes {
             mm[0] = Math.min(tmn, FloatVector.fromArray(S8, nmn, 0).reduceLanes(VectorOperators.MIN));
             mm[1] = Math.max(tmx, FloatVector.fromArray(S8, nmx, 0).reduceLanes(VectorOperators.MAX));
         }
+    }
+
+    private static final VectorSpecies<Float> F4 = FloatVector.SPECIES_128;
+    private static final VectorSpecies<Double> D4 = DoubleVector.SPECIES_256;
+
+    /**
+     * {@code Lanes.pairSums} with four-lane double vectors: each group of four values is widened to doubles and
+     * its terms go to lanes 0..3 of the accumulators, exactly as the plain loop's four partial sums take them (the
+     * products and differences are the same double operations, multiply then add, never fused). Minimum and maximum
+     * are compare-and-blend, as the plain loop's {@code <} and {@code >}.
+     */
+    static double[] pairSums(float[] x, float[] y) {
+        int n = x.length;
+        int body = n - n % 4;
+        DoubleVector e2 = DoubleVector.zero(D4);
+        DoubleVector ea = e2;
+        DoubleVector em = e2;
+        DoubleVector xx = e2;
+        DoubleVector yy = e2;
+        DoubleVector xy = e2;
+        FloatVector xlo = FloatVector.broadcast(F4, Float.POSITIVE_INFINITY);
+        FloatVector xhi = FloatVector.broadcast(F4, Float.NEGATIVE_INFINITY);
+        FloatVector ylo = xlo;
+        FloatVector yhi = xhi;
+        for (int i = 0; i < body; i += 4) {
+            FloatVector fa = FloatVector.fromArray(F4, x, i);
+            FloatVector fb = FloatVector.fromArray(F4, y, i);
+            xlo = xlo.blend(fa, fa.lt(xlo));
+            xhi = xhi.blend(fa, fa.compare(VectorOperators.GT, xhi));
+            ylo = ylo.blend(fb, fb.lt(ylo));
+            yhi = yhi.blend(fb, fb.compare(VectorOperators.GT, yhi));
+            DoubleVector a = (DoubleVector) fa.convertShape(VectorOperators.F2D, D4, 0);
+            DoubleVector b = (DoubleVector) fb.convertShape(VectorOperators.F2D, D4, 0);
+            DoubleVector e = b.sub(a);
+            DoubleVector ae = e.abs();
+            e2 = e2.add(e.mul(e));
+            ea = ea.add(ae);
+            em = em.blend(ae, ae.compare(VectorOperators.GT, em));
+            xx = xx.add(a.mul(a));
+            yy = yy.add(b.mul(b));
+            xy = xy.add(a.mul(b));
+        }
+        double[] le = e2.toArray();
+        double[] la = ea.toArray();
+        double[] lx = xx.toArray();
+        double[] ly = yy.toArray();
+        double[] lp = xy.toArray();
+        double m = 0;
+        for (double v : em.toArray()) {
+            m = v > m ? v : m;
+        }
+        float mnx = Float.POSITIVE_INFINITY;
+        float mxx = Float.NEGATIVE_INFINITY;
+        float mny = Float.POSITIVE_INFINITY;
+        float mxy = Float.NEGATIVE_INFINITY;
+        float[] vxlo = xlo.toArray();
+        float[] vxhi = xhi.toArray();
+        float[] vylo = ylo.toArray();
+        float[] vyhi = yhi.toArray();
+        for (int k = 0; k < 4; k++) {
+            mnx = vxlo[k] < mnx ? vxlo[k] : mnx;
+            mxx = vxhi[k] > mxx ? vxhi[k] : mxx;
+            mny = vylo[k] < mny ? vylo[k] : mny;
+            mxy = vyhi[k] > mxy ? vyhi[k] : mxy;
+        }
+        for (int i = body, j = 0; i < n; i++, j++) {
+            float a = x[i];
+            float b = y[i];
+            mnx = a < mnx ? a : mnx;
+            mxx = a > mxx ? a : mxx;
+            mny = b < mny ? b : mny;
+            mxy = b > mxy ? b : mxy;
+            double e = (double) b - a;
+            double ae = Math.abs(e);
+            le[j] += e * e;
+            la[j] += ae;
+            m = ae > m ? ae : m;
+            lx[j] += (double) a * a;
+            ly[j] += (double) b * b;
+            lp[j] += (double) a * b;
+        }
+        return new double[] {Lanes.lanes(le), Lanes.lanes(la), m, Lanes.lanes(lx), Lanes.lanes(ly), Lanes.lanes(lp),
+            mnx, mxx, mny, mxy};
     }
 
     static float[] minMax(float[] v, int from, int to, float lo, float hi) {

@@ -90,4 +90,71 @@ class LanesTest {
         assertEquals(e, got[0], 1e-9);
         assertEquals(s, got[1], 1e-9);
     }
+
+    @Test
+    void pairSumsVectorEqualsPlainLoopBitForBit() {
+        // Reference: the plain four-lane loop; every length 0..70 covers the tails, plus a long array
+        SplittableRandom r = new SplittableRandom(9);
+        for (int n = 0; n < 71; n++) {
+            assertPairSumsAgree(values(r, n), values(r, n));
+        }
+        float[] x = values(r, 100_003);
+        float[] y = x.clone();
+        for (int i = 0; i < y.length; i += 3) {
+            y[i] += (float) r.nextGaussian() * Math.abs(y[i]) * 1e-2f;
+        }
+        assertPairSumsAgree(x, y);
+    }
+
+    private static void assertPairSumsAgree(float[] x, float[] y) {
+        double[] want = Lanes.scalarPairSums(x, y);
+        double[] got = VectorLanes.pairSums(x, y);
+        assertEquals(Lanes.PAIR_SUMS_LENGTH, got.length);
+        for (int k = 0; k < want.length; k++) {
+            assertEquals(Double.doubleToLongBits(want[k]), Double.doubleToLongBits(got[k]),
+                    "entry " + k + " of " + x.length + ": " + want[k] + " vs " + got[k]);
+        }
+    }
+
+    @Test
+    void pairSumsMatchExactSums() {
+        // Source: exact arithmetic with java.math.BigDecimal (every float and every product of two floats is exact
+        // there); the four-lane double sums must agree to a few units of double rounding
+        SplittableRandom r = new SplittableRandom(10);
+        float[] x = new float[1003];
+        float[] y = new float[x.length];
+        for (int i = 0; i < x.length; i++) {
+            x[i] = (float) r.nextGaussian();
+            y[i] = x[i] + (float) (r.nextGaussian() * 0.05);
+        }
+        java.math.BigDecimal se = java.math.BigDecimal.ZERO;
+        java.math.BigDecimal sa = java.math.BigDecimal.ZERO;
+        java.math.BigDecimal sxy = java.math.BigDecimal.ZERO;
+        double max = 0;
+        float xmin = Float.POSITIVE_INFINITY;
+        float ymax = Float.NEGATIVE_INFINITY;
+        for (int i = 0; i < x.length; i++) {
+            java.math.BigDecimal a = new java.math.BigDecimal(x[i]);
+            java.math.BigDecimal b = new java.math.BigDecimal(y[i]);
+            java.math.BigDecimal e = b.subtract(a);
+            se = se.add(e.multiply(e));
+            sa = sa.add(e.abs());
+            sxy = sxy.add(a.multiply(b));
+            max = Math.max(max, e.abs().doubleValue());
+            xmin = Math.min(xmin, x[i]);
+            ymax = Math.max(ymax, y[i]);
+        }
+        for (double[] p : new double[][] {Lanes.scalarPairSums(x, y), Lanes.pairSums(x, y)}) {
+            assertEquals(se.doubleValue(), p[0], 1e-13 * se.doubleValue());
+            assertEquals(sa.doubleValue(), p[1], 1e-13 * sa.doubleValue());
+            assertEquals(max, p[2], 0.0);
+            assertEquals(sxy.doubleValue(), p[5], 1e-12 * Math.abs(sxy.doubleValue()));
+            assertEquals(xmin, p[6], 0.0);
+            assertEquals(ymax, p[9], 0.0);
+        }
+        double[] empty = Lanes.pairSums(new float[0], new float[0]);
+        assertEquals(0.0, empty[0]);
+        assertEquals(Double.POSITIVE_INFINITY, empty[6]);
+        assertEquals(Double.NEGATIVE_INFINITY, empty[9]);
+    }
 }
