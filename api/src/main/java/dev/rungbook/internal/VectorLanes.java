@@ -170,39 +170,51 @@ final class VectorLanes {
         }
     }
 
-    private static final VectorSpecies<Float> F4 = FloatVector.SPECIES_128;
     private static final VectorSpecies<Double> D4 = DoubleVector.SPECIES_256;
 
     /**
      * {@code Lanes.pairSums} with four-lane double vectors: each group of four values is widened to doubles and
      * its terms go to lanes 0..3 of the accumulators, exactly as the plain loop's four partial sums take them (the
-     * products and differences are the same double operations, multiply then add, never fused). Minimum and maximum
-     * are compare-and-blend, as the plain loop's {@code <} and {@code >}.
+     * products and differences are the same double operations, multiply then add, never fused). The floats are
+     * loaded eight at a time, in the 256-bit shape the other kernels use (a second float shape in the JIT's
+     * profiles of the shared Vector API methods can make it box vectors; see {@code VectorForward}), and widened
+     * half by half. Minimum and maximum are compare-and-blend, as the plain loop's {@code <} and {@code >}.
      */
     static double[] pairSums(float[] x, float[] y) {
         int n = x.length;
-        int body = n - n % 4;
         DoubleVector e2 = DoubleVector.zero(D4);
         DoubleVector ea = e2;
         DoubleVector em = e2;
         DoubleVector xx = e2;
         DoubleVector yy = e2;
         DoubleVector xy = e2;
-        FloatVector xlo = FloatVector.broadcast(F4, Float.POSITIVE_INFINITY);
-        FloatVector xhi = FloatVector.broadcast(F4, Float.NEGATIVE_INFINITY);
+        FloatVector xlo = FloatVector.broadcast(S8, Float.POSITIVE_INFINITY);
+        FloatVector xhi = FloatVector.broadcast(S8, Float.NEGATIVE_INFINITY);
         FloatVector ylo = xlo;
         FloatVector yhi = xhi;
-        for (int i = 0; i < body; i += 4) {
-            FloatVector fa = FloatVector.fromArray(F4, x, i);
-            FloatVector fb = FloatVector.fromArray(F4, y, i);
+        int i = 0;
+        for (; i + 8 <= n; i += 8) {
+            FloatVector fa = FloatVector.fromArray(S8, x, i);
+            FloatVector fb = FloatVector.fromArray(S8, y, i);
             xlo = xlo.blend(fa, fa.lt(xlo));
             xhi = xhi.blend(fa, fa.compare(VectorOperators.GT, xhi));
             ylo = ylo.blend(fb, fb.lt(ylo));
             yhi = yhi.blend(fb, fb.compare(VectorOperators.GT, yhi));
+            // values i .. i + 3, then i + 4 .. i + 7: lane j takes value i + j, then i + 4 + j
             DoubleVector a = (DoubleVector) fa.convertShape(VectorOperators.F2D, D4, 0);
             DoubleVector b = (DoubleVector) fb.convertShape(VectorOperators.F2D, D4, 0);
             DoubleVector e = b.sub(a);
             DoubleVector ae = e.abs();
+            e2 = e2.add(e.mul(e));
+            ea = ea.add(ae);
+            em = em.blend(ae, ae.compare(VectorOperators.GT, em));
+            xx = xx.add(a.mul(a));
+            yy = yy.add(b.mul(b));
+            xy = xy.add(a.mul(b));
+            a = (DoubleVector) fa.convertShape(VectorOperators.F2D, D4, 1);
+            b = (DoubleVector) fb.convertShape(VectorOperators.F2D, D4, 1);
+            e = b.sub(a);
+            ae = e.abs();
             e2 = e2.add(e.mul(e));
             ea = ea.add(ae);
             em = em.blend(ae, ae.compare(VectorOperators.GT, em));
@@ -227,13 +239,16 @@ final class VectorLanes {
         float[] vxhi = xhi.toArray();
         float[] vylo = ylo.toArray();
         float[] vyhi = yhi.toArray();
-        for (int k = 0; k < 4; k++) {
+        for (int k = 0; k < 8; k++) {
             mnx = vxlo[k] < mnx ? vxlo[k] : mnx;
             mxx = vxhi[k] > mxx ? vxhi[k] : mxx;
             mny = vylo[k] < mny ? vylo[k] : mny;
             mxy = vyhi[k] > mxy ? vyhi[k] : mxy;
         }
-        for (int i = body, j = 0; i < n; i++, j++) {
+        // the rest (fewer than 8): i is a multiple of 4, and so is the plain loop's tail start n - n % 4, so value
+        // k goes to lane k mod 4 either way
+        for (; i < n; i++) {
+            int j = i & 3;
             float a = x[i];
             float b = y[i];
             mnx = a < mnx ? a : mnx;
