@@ -54,13 +54,14 @@ public final class Fused {
      * @param dequantOut receives {@code rows * cols} dequantized values
      * @param sqErrOut receives {@code rows} sums of squared error, or {@code null}
      * @param sqSignalOut receives {@code rows} sums of squared input, or {@code null}
+     * @return the largest {@code |x|} of the matrix
      * @throws IllegalArgumentException for bad sizes or bits, or a NaN/infinite value (naming row, column and index)
      */
-    public static void quantizeRows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scalesOut,
+    public static float quantizeRows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scalesOut,
             int[] zeroPointsOut, byte[] codesOut, float[] dequantOut, double[] sqErrOut, double[] sqSignalOut) {
         Checks.inRange(bits, 2, 8, "bits for byte codes");
         checkSizes(w, rows, cols, scalesOut, zeroPointsOut, codesOut.length, dequantOut, sqErrOut, sqSignalOut);
-        rows(w, rows, cols, bits, symmetric, scalesOut, zeroPointsOut, codesOut, null, dequantOut, sqErrOut,
+        return rows(w, rows, cols, bits, symmetric, scalesOut, zeroPointsOut, codesOut, null, dequantOut, sqErrOut,
                 sqSignalOut, true);
     }
 
@@ -68,25 +69,29 @@ public final class Fused {
      * Quantizes every row of {@code w} at {@code bits <= 16} into short codes; otherwise as
      * {@link #quantizeRows(float[], int, int, int, boolean, float[], int[], byte[], float[], double[], double[])}.
      */
-    public static void quantizeRows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scalesOut,
+    public static float quantizeRows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scalesOut,
             int[] zeroPointsOut, short[] codesOut, float[] dequantOut, double[] sqErrOut, double[] sqSignalOut) {
         Checks.inRange(bits, 2, 16, "bits for short codes");
         checkSizes(w, rows, cols, scalesOut, zeroPointsOut, codesOut.length, dequantOut, sqErrOut, sqSignalOut);
-        rows(w, rows, cols, bits, symmetric, scalesOut, zeroPointsOut, null, codesOut, dequantOut, sqErrOut,
+        return rows(w, rows, cols, bits, symmetric, scalesOut, zeroPointsOut, null, codesOut, dequantOut, sqErrOut,
                 sqSignalOut, true);
     }
 
     /**
      * The rows, into {@code bytes} or {@code shorts} (one is null); each row's pass after its min/max runs on the
      * Vector API when {@code vector} is true and the module is there ({@link Lanes#vectorQuantizeRow}), else as the
-     * plain loops. Tests call it with {@code vector} false for the reference.
+     * plain loops. Tests call it with {@code vector} false for the reference. Returns the largest {@code |x|}.
      */
-    static void rows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scales, int[] zps,
+    static float rows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scales, int[] zps,
             byte[] bytes, short[] shorts, float[] dq, double[] sqErr, double[] sqSignal, boolean vector) {
-        if (vector && Lanes.vectorQuantizeRows(w, rows, cols, bits, symmetric, scales, zps, bytes, shorts, dq, sqErr,
-                sqSignal)) {
-            return;
+        if (vector) {
+            float amax = Lanes.vectorQuantizeRows(w, rows, cols, bits, symmetric, scales, zps, bytes, shorts, dq,
+                    sqErr, sqSignal);
+            if (amax >= 0) {
+                return amax;
+            }
         }
+        float amax = 0f;
         float hi = (1 << (bits - 1)) - 1;
         float lo = symmetric ? -hi : -hi - 1;
         boolean wantSums = sqErr != null || sqSignal != null;
@@ -96,6 +101,7 @@ public final class Fused {
             float[] mm = vector ? Lanes.minMax(w, off, off + cols, 0f, 0f)
                     : Lanes.scalarMinMax(w, off, off + cols, 0f, 0f);
             float scale = rowParams(w, off, cols, r, bits, symmetric, mm[0], mm[1], scales, zps);
+            amax = Math.max(amax, Math.max(-mm[0], mm[1]));
             float zp = zps[r];
             roundRow(w, off, cols, lo, hi, scale, zp, dq);
             dequantRow(w, off, cols, scale, zp, dq, bytes, shorts, sums, vector);
@@ -109,6 +115,7 @@ public final class Fused {
                 }
             }
         }
+        return amax;
     }
 
     private static int checkSizes(float[] w, int rows, int cols, float[] scales, int[] zps, int codes,

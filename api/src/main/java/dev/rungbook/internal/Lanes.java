@@ -38,7 +38,7 @@ public final class Lanes {
                         int.class));
                 es = l.findStatic(c, "errorSums", MethodType.methodType(double[].class, float[].class,
                         float[].class, int.class, int.class, float.class));
-                qr = l.findStatic(c, "quantizeRows", MethodType.methodType(void.class, float[].class, int.class,
+                qr = l.findStatic(c, "quantizeRows", MethodType.methodType(float.class, float[].class, int.class,
                         int.class, int.class, boolean.class, float[].class, int[].class, byte[].class, short[].class,
                         float[].class, double[].class, double[].class));
                 ps = l.findStatic(c, "pairSums", MethodType.methodType(double[].class, float[].class,
@@ -147,18 +147,17 @@ public final class Lanes {
     }
 
     /**
-     * The Vector API form of {@code Fused}'s rows (same results; see {@code VectorLanes.quantizeRows}); false, doing
-     * nothing, on the scalar path.
+     * The Vector API form of {@code Fused}'s rows (same results; see {@code VectorLanes.quantizeRows}), returning
+     * the largest {@code |x|}; -1, doing nothing, on the scalar path.
      */
-    static boolean vectorQuantizeRows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scales,
+    static float vectorQuantizeRows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scales,
             int[] zps, byte[] bytes, short[] shorts, float[] dq, double[] sqErr, double[] sqSignal) {
         if (QUANTIZE_ROWS == null) {
-            return false;
+            return -1f;
         }
         try {
-            QUANTIZE_ROWS.invokeExact(w, rows, cols, bits, symmetric, scales, zps, bytes, shorts, dq, sqErr,
-                    sqSignal);
-            return true;
+            return (float) QUANTIZE_ROWS.invokeExact(w, rows, cols, bits, symmetric, scales, zps, bytes, shorts, dq,
+                    sqErr, sqSignal);
         } catch (Throwable e) {
             throw unchecked(e);
         }

@@ -70,7 +70,7 @@ final class VectorLanes {
      * that rounds, clamps, narrows and stores the codes, stores the dequantized values, adds the error and signal
      * sums in the order of {@link #errorSums} and, on the side, takes the min/max of the next row, whose load from
      * memory then overlaps this row's arithmetic (a minimum or maximum does not depend on the order of the values).
-     * Only the first row has a pass of its own for its min/max.
+     * Only the first row has a pass of its own for its min/max. Returns the largest {@code |x|}.
      *
      * <p>Where the plain loops round with {@code (v + MAGIC) - MAGIC} and clamp in float, this pass reads the
      * rounded integer from the bits of {@code v + MAGIC} (for {@code |v| < 2^22} they are {@code MAGIC}'s plus the
@@ -78,8 +78,9 @@ final class VectorLanes {
      * reverse: exact integers throughout, so the same codes and, from them, the same dequantized floats. (Java 17's
      * compiler has no fast float-to-int lane conversion, and its float lane min/max are several instructions each.)
      */
-    static void quantizeRows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scales, int[] zps,
+    static float quantizeRows(float[] w, int rows, int cols, int bits, boolean symmetric, float[] scales, int[] zps,
             byte[] bytes, short[] shorts, float[] dq, double[] sqErr, double[] sqSignal) {
+        float amax = 0f;
         int ihi = (1 << (bits - 1)) - 1;
         int ilo = symmetric ? -ihi : -ihi - 1;
         float[] mm = minMax(w, 0, cols, 0f, 0f);
@@ -90,6 +91,7 @@ final class VectorLanes {
         for (int r = 0; r < rows; r++) {
             int off = r * cols;
             float scale = Fused.rowParams(w, off, cols, r, bits, symmetric, mm[0], mm[1], scales, zps);
+            amax = Math.max(amax, Math.max(-mm[0], mm[1]));
             int z = zps[r];
             float zp = z;
             float inv = 1f / scale;
@@ -168,6 +170,7 @@ final class VectorLanes {
             mm[0] = Math.min(tmn, FloatVector.fromArray(S8, nmn, 0).reduceLanes(VectorOperators.MIN));
             mm[1] = Math.max(tmx, FloatVector.fromArray(S8, nmx, 0).reduceLanes(VectorOperators.MAX));
         }
+        return amax;
     }
 
     private static final VectorSpecies<Double> D4 = DoubleVector.SPECIES_256;

@@ -156,15 +156,22 @@ final class Engine {
         if (q.kind == Quantizer.Kind.NF4 && !q.pow2 && nf4KernelEligible()) {
             return nf4Kernel();
         }
+        if (q.kind == Quantizer.Kind.LINEAR && !(q.rounding instanceof LayerRounding) && fusedSpec()) {
+            // The row kernel takes every row's min/max before it quantizes the row and refuses NaN and infinity
+            // itself; it returns the largest magnitude, and beyond FUSED_LIMIT its result is dropped for the
+            // general path, which is what a check of the values first would have chosen.
+            Quantized r = linearFused();
+            if (r != null) {
+                path = "fused";
+                return r;
+            }
+            return linearKernelEligible() ? linearKernel() : linear();
+        }
         maxAbs = checkFinite();
         switch (q.kind) {
             case LINEAR:
                 if (q.rounding instanceof LayerRounding) {
                     return linearLayer();
-                }
-                if (fusedEligible()) {
-                    path = "fused";
-                    return linearFused();
                 }
                 return linearKernelEligible() ? linearKernel() : linear();
             case FLOAT:
@@ -427,11 +434,7 @@ final class Engine {
      * True for the common default: signed min-max grid with nearest-even rounding, one scale per row of a row-major
      * matrix (per channel of axis 0) or for the whole tensor. Those specs run through the fused row kernel.
      */
-    private boolean fusedEligible() {
-        return fusedSpec() && maxAbs < FUSED_LIMIT;
-    }
-
-    /** {@link #fusedEligible} without the magnitude condition (known before the values are checked). */
+    /** Whether the row kernel serves the spec (for values below {@link #FUSED_LIMIT} in magnitude). */
     private boolean fusedSpec() {
         boolean rows = seg.axis < 0 || (seg.axis == 0 && seg.groupSize == 0);
         return rows && n > 0 && seg.size > 0 && !q.unsigned && !q.midRise && !q.pow2 && (q.symmetric || !q.narrow)
@@ -441,7 +444,8 @@ final class Engine {
     /**
      * The fused path: one call of the row kernel (min/max, scale, rounding, dequantization in tight loops over the
      * backing array, {@code x / s} in float32). Rows whose values are all equal are then redone by the general path,
-     * which reproduces such rows exactly.
+     * which reproduces such rows exactly. Returns null, with {@link #maxAbs} set, when some value reaches
+     * {@link #FUSED_LIMIT} in magnitude; refuses NaN and infinity as {@link #checkFinite} does.
      */
     private Quantized linearFused() {
         int rows = seg.count;
@@ -454,14 +458,24 @@ final class Engine {
         byte[] b = null;
         short[] sh = null;
         Progress.checkInterrupted(task);
-        if (q.bits <= 8) {
-            b = new byte[n];
-            Fused.quantizeRows(data, rows, cols, q.bits, q.symmetric, scales, zpi, b, deq, sqErr, null);
-            codes = Codes.wrap(b, q.bits, true);
-        } else {
-            sh = new short[n];
-            Fused.quantizeRows(data, rows, cols, q.bits, q.symmetric, scales, zpi, sh, deq, sqErr, null);
-            codes = Codes.wrap(sh, q.bits, true);
+        float amax;
+        try {
+            if (q.bits <= 8) {
+                b = new byte[n];
+                amax = Fused.quantizeRows(data, rows, cols, q.bits, q.symmetric, scales, zpi, b, deq, sqErr, null);
+                codes = Codes.wrap(b, q.bits, true);
+            } else {
+                sh = new short[n];
+                amax = Fused.quantizeRows(data, rows, cols, q.bits, q.symmetric, scales, zpi, sh, deq, sqErr, null);
+                codes = Codes.wrap(sh, q.bits, true);
+            }
+        } catch (IllegalArgumentException e) {
+            checkFinite(); // the kernel found a NaN or infinity: refuse it naming the tensor and index
+            throw e;
+        }
+        if (amax >= FUSED_LIMIT) {
+            maxAbs = amax;
+            return null;
         }
         float[] zps = new float[rows];
         for (int r = 0; r < rows; r++) {
