@@ -201,7 +201,10 @@ public final class SimulatedNetwork {
                     + " and the inputs are " + Arrays.toString(x.shape()));
         }
         Calibration cal = Calibration.of(x.withName(layer.name() + " calibration inputs")).withBias(layer.bias());
-        return !tail.isEmpty() && tail.get(0) instanceof Relu ? cal.followedBy(Calibration.Activation.RELU) : cal;
+        if (!tail.isEmpty() && tail.get(0) instanceof Relu) {
+            return cal.followedBy(Calibration.Activation.RELU);
+        }
+        return !tail.isEmpty() && tail.get(0) instanceof Relu6 ? cal.followedBy(Calibration.Activation.RELU6) : cal;
     }
 
     /** Refuses granularities whose meaning changes when a convolution weight is seen as a matrix. */

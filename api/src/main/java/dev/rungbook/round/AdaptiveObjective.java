@@ -380,7 +380,6 @@ final class AdaptiveObjective {
         la.sgemm(false, true, count, rows, cols, 1f, xb, 0, cols, soft, 0, cols, 0f, yb, 0, rows);
         double rec = 0;
         double g = 2.0 / count;
-        boolean relu = act == Calibration.Activation.RELU;
         for (int i = 0; i < count; i++) {
             int t = idx[i] * rows;
             for (int o = 0; o < rows; o++) {
@@ -388,8 +387,7 @@ final class AdaptiveObjective {
                 double out = act.apply(pre);
                 double d = out - target[t + o];
                 rec += d * d;
-                double slope = relu ? (pre > 0 ? 1 : 0) : 1;
-                yb[i * rows + o] = (float) (g * d * slope); // now dLoss/dY~
+                yb[i * rows + o] = (float) (g * d * act.slope(pre)); // now dLoss/dY~
             }
         }
         rec /= count;

@@ -32,11 +32,35 @@ public final class Calibration {
         /** No activation: the objective is the pre-activation output error. The default. */
         IDENTITY,
         /** {@code max(0, y)}. */
-        RELU;
+        RELU,
+        /** {@code min(max(0, y), 6)}. */
+        RELU6;
 
         /** The activation of {@code y}. */
         public double apply(double y) {
-            return this == RELU ? Math.max(0.0, y) : y;
+            switch (this) {
+                case RELU:
+                    return Math.max(0.0, y);
+                case RELU6:
+                    return Math.min(Math.max(0.0, y), 6.0);
+                default:
+                    return y;
+            }
+        }
+
+        /**
+         * The derivative of {@link #apply} at {@code y}: 1 where the activation passes {@code y} through, 0 where it
+         * is flat (at the kinks, 0 for ReLU at 0 and for ReLU6 at 0 and 6).
+         */
+        public double slope(double y) {
+            switch (this) {
+                case RELU:
+                    return y > 0 ? 1 : 0;
+                case RELU6:
+                    return y > 0 && y < 6 ? 1 : 0;
+                default:
+                    return 1;
+            }
         }
     }
 

@@ -17,15 +17,37 @@ class AdaptiveObjectiveTest {
     }
 
     private static void checkGradient(boolean bias, boolean relu, boolean regularise, double beta) {
+        checkGradient(bias, relu ? Calibration.Activation.RELU : Calibration.Activation.IDENTITY, regularise, beta,
+                1.0);
+    }
+
+    private static void checkGradient(boolean bias, Calibration.Activation act, boolean regularise, double beta,
+            double weightScale) {
+        boolean relu = act != Calibration.Activation.IDENTITY;
         int rows = 3;
         int cols = 5;
         int n = 40;
-        float[] w = gaussian(7, rows * cols, 1.0);
+        float[] w = gaussian(7, rows * cols, weightScale);
         float[] x = correlatedInputs(8, n, cols, 5);
         float[] b = bias ? gaussian(9, rows, 1.0) : null;
         GridAssignment g = perRowGrid(w, rows, cols, 4);
-        AdaptiveObjective obj = new AdaptiveObjective(LinearAlgebra.pureJava(), w, rows, cols, x, n, b,
-                relu ? Calibration.Activation.RELU : Calibration.Activation.IDENTITY, g, 0.05);
+        if (act == Calibration.Activation.RELU6) {
+            int below = 0;
+            int above = 0;
+            for (int i = 0; i < n; i++) {
+                for (int o = 0; o < rows; o++) {
+                    double pre = b == null ? 0 : b[o];
+                    for (int c = 0; c < cols; c++) {
+                        pre += (double) w[o * cols + c] * x[i * cols + c];
+                    }
+                    below += pre < 0 ? 1 : 0;
+                    above += pre > 6 ? 1 : 0;
+                }
+            }
+            assertTrue(below > 0 && above > 0, "outputs below 0: " + below + ", above 6: " + above);
+        }
+        AdaptiveObjective obj = new AdaptiveObjective(LinearAlgebra.pureJava(), w, rows, cols, x, n, b, act, g,
+                0.05);
         Random r = new Random(10);
         float[] v = new float[rows * cols];
         for (int e = 0; e < v.length; e++) {
@@ -62,6 +84,20 @@ class AdaptiveObjectiveTest {
         // beta 20 (the start of the schedule, power from the table) and 1.5 (below 2: power by exp and log)
         checkGradient(false, false, true, 20.0);
         checkGradient(true, false, true, 1.5);
+        // ReLU6, with weights large enough that outputs fall on both flat parts (below 0 and above 6)
+        checkGradient(true, Calibration.Activation.RELU6, true, 4.0, 3.0);
+    }
+
+    @Test
+    void relu6IsClippedAndFlatOutsideItsRange() {
+        // Source: the definition ReLU6(y) = min(max(0, y), 6), derivative 1 on (0, 6) and 0 elsewhere
+        Calibration.Activation a = Calibration.Activation.RELU6;
+        assertEquals(0.0, a.apply(-2.5), 0.0);
+        assertEquals(3.25, a.apply(3.25), 0.0);
+        assertEquals(6.0, a.apply(9.0), 0.0);
+        assertEquals(0.0, a.slope(-1), 0.0);
+        assertEquals(1.0, a.slope(5.9), 0.0);
+        assertEquals(0.0, a.slope(6.5), 0.0);
     }
 
     @Test
