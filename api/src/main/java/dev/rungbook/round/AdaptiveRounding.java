@@ -43,9 +43,10 @@ import java.util.function.Consumer;
  * learning rate 1e-3 (betas 0.9 / 0.999, epsilon 1e-8); seed 0. Every setting returns a new rule.
  *
  * <p>Progress: every iteration is reported to the {@link Progress} listener under the task
- * {@code "adaptive rounding <name>"} with the batch loss; every 50 iterations the number of undecided weights
- * ({@code h(V)} not within 1e-3 of 0 or 1) is reported under the task {@code "adaptive rounding <name>: undecided"}
- * (done = undecided weights, total = all weights). If the thread is interrupted, the run stops after the current
+ * {@code "adaptive rounding <name>"} with the batch loss; every 50 iterations the number of decided weights
+ * ({@code h(V)} within 1e-3 of 0 or 1) is reported under the task {@code "adaptive rounding <name>: decided"}
+ * (done = decided weights, total = all weights), so that its bar fills as the regulariser drives the weights to a
+ * side; the undecided share per iteration is in {@link RoundingRun}. If the thread is interrupted, the run stops after the current
  * iteration and keeps its best state so far: the hard rounding of the current {@code V} or of the initial one
  * (rounding to nearest), whichever has the lower output error on the whole calibration set. The interrupt flag stays
  * set for the caller, and {@link RoundingRun#interrupted()} says so. Runs are deterministic for a seed and a
@@ -283,7 +284,7 @@ public final class AdaptiveRounding implements LayerRounding {
                     + Arrays.toString(grid.shape()));
         }
         String task = "adaptive rounding " + (weights.name() == null ? "tensor" : weights.name());
-        String undecidedTask = task + ": undecided";
+        String decidedTask = task + ": decided";
         long t0 = System.nanoTime();
         LinearAlgebra la = LinearAlgebra.instance();
         float[] w = TensorAccess.data(weights);
@@ -331,12 +332,12 @@ public final class AdaptiveRounding implements LayerRounding {
                 done = t + 1;
                 progress.update(task, done, iterations, loss);
                 if (done % 50 == 0 || done == iterations) {
-                    progress.update(undecidedTask, Math.round(undecided[t] * size), size, Double.NaN);
+                    progress.update(decidedTask, size - Math.round(undecided[t] * size), size, Double.NaN);
                 }
             }
         } finally {
             progress.finish(task);
-            progress.finish(undecidedTask);
+            progress.finish(decidedTask);
         }
         int[] codes = obj.hardCodes(v);
         if (polish && !interrupted) {

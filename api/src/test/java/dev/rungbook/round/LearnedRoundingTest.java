@@ -310,7 +310,7 @@ class LearnedRoundingTest {
         assertEquals(120, run.steps());
         assertEquals(120, run.lossHistory().length);
         assertTrue(tasks.contains("adaptive rounding fc.weight"));
-        assertTrue(tasks.contains("adaptive rounding fc.weight: undecided"));
+        assertTrue(tasks.contains("adaptive rounding fc.weight: decided"));
         double near = outputError(w, g, nearest(g, w), rows, cols, x, n);
         double got = outputError(w, g, run.codes(), rows, cols, x, n);
         // The initial state rounds to nearest except at exact halves; the kept state is no worse than it.
