@@ -18,7 +18,8 @@ import jdk.incubator.vector.VectorSpecies;
  * are those of the scalar loops bit for bit ({@code LanesTest} checks it).
  */
 final class VectorLanes {
-    private static final VectorSpecies<Float> S = FloatVector.SPECIES_PREFERRED;
+    /** The shape of every float vector here (and in the other kernels): 256 bits. */
+    private static final VectorSpecies<Float> S = FloatVector.SPECIES_256;
 
     /** Eight lanes, as the fixed summation order of {@code Fused.errorSums} has. */
     private static final VectorSpecies<Float> S8 = FloatVector.SPECIES_256;
