@@ -255,6 +255,15 @@ final class Engine {
     }
 
     /**
+     * The power-of-two scale for {@code s} as a float32: {@link #pow2Ceil}, but never below the smallest float32,
+     * {@link Float#MIN_VALUE} = 2^-149 (itself a power of two), so that a segment of tiny values does not get the
+     * scale 0 (which would turn its values to 0 or, divided by 0, to NaN). Still at least {@code s}.
+     */
+    static float pow2Scale(double s) {
+        return Math.max((float) pow2Ceil(s), Float.MIN_VALUE);
+    }
+
+    /**
      * The float32 scale near {@code s} (within two ulps) for which {@code (float)(scale * top) == (float) target},
      * if there is one, else {@code (float) s}: so that the value at the end of the range is reproduced exactly.
      */
@@ -293,7 +302,7 @@ final class Engine {
             }
             // a mid-rise grid's cells cover [-a, a] (overload point a); otherwise the top level is a itself
             double s = q.midRise ? a / (qmax + 1.0) : a / qmax;
-            float sf = q.pow2 ? (float) pow2Ceil(s) : q.midRise ? Math.max((float) s, Float.MIN_VALUE)
+            float sf = q.pow2 ? pow2Scale(s) : q.midRise ? Math.max((float) s, Float.MIN_VALUE)
                     : fitScale(s, a, qmax);
             return new float[] {sf, z};
         }
@@ -303,7 +312,7 @@ final class Engine {
         if (!(s > 0)) {
             return new float[] {1f, (float) Math.max(qmin, Math.min(qmax, 0))};
         }
-        float sf = q.pow2 ? (float) pow2Ceil(s) : Math.max((float) s, Float.MIN_VALUE);
+        float sf = q.pow2 ? pow2Scale(s) : Math.max((float) s, Float.MIN_VALUE);
         double z = Math.max(qmin, Math.min(qmax, Math.rint(qmin - lo / sf)));
         if (!q.pow2) {
             sf = hi > 0 ? fitScale(sf, hi, qmax - z) : fitScale(sf, lo, qmin - z);
@@ -730,7 +739,7 @@ final class Engine {
             return 1f;
         }
         double s = a / f.max();
-        return q.pow2 ? (float) pow2Ceil(s) : fitScale(s, a, f.max());
+        return q.pow2 ? pow2Scale(s) : fitScale(s, a, f.max());
     }
 
     private double floatSse(float[] v, int from, int to, Range r, int s) {
@@ -833,7 +842,7 @@ final class Engine {
         if (!(a > 0)) {
             return 1f;
         }
-        return q.pow2 ? (float) pow2Ceil(a) : (float) a;
+        return q.pow2 ? pow2Scale(a) : (float) a;
     }
 
     private Quantized levelsGrid(float[] levels) {

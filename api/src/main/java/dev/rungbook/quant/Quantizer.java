@@ -332,7 +332,8 @@ public final class Quantizer {
 
     /**
      * Scales rounded up to a power of two (so nothing extra is clipped), stored as an 8-bit exponent. Linear, float,
-     * NF4 and logarithmic grids (MX scales are powers of two already).
+     * NF4 and logarithmic grids (MX scales are powers of two already). A segment of values so small that its scale
+     * would be below the smallest float32 gets that, {@code 2^-149}, never 0.
      */
     public Quantizer powerOfTwoScale() {
         require(kind == Kind.LINEAR || kind == Kind.FLOAT || kind == Kind.NF4 || kind == Kind.LOG,
