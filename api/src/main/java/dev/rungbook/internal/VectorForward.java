@@ -2,6 +2,8 @@ package dev.rungbook.internal;
 
 import jdk.incubator.vector.FloatVector;
 import jdk.incubator.vector.IntVector;
+import jdk.incubator.vector.LongVector;
+import jdk.incubator.vector.VectorOperators;
 import jdk.incubator.vector.VectorSpecies;
 
 /**
@@ -30,6 +32,11 @@ final class VectorForward {
      */
     private static final VectorSpecies<Float> F = FloatVector.SPECIES_PREFERRED;
     private static final VectorSpecies<Integer> I = IntVector.SPECIES_PREFERRED;
+    /**
+     * The requantization's 64-bit lanes: the shape of {@link #I}, so that an int vector is reinterpreted as longs
+     * (its even lanes the low halves, its odd lanes the high halves) without a change of shape.
+     */
+    private static final VectorSpecies<Long> Q = LongVector.SPECIES_PREFERRED;
     /**
      * The convolution kernel's vectors: 256-bit, the shape of the library's other float-vector code, since this kernel
      * needs separate multiplies and adds (see {@link #F}).
@@ -459,6 +466,45 @@ final class VectorForward {
             }
             c0.intoArray(tmp, 0);
             System.arraycopy(tmp, 0, y, i * out + j0, cols);
+        }
+    }
+
+    /**
+     * Requantizes {@code y[s out + c]} in place for the rows {@code s < n} and the columns {@code c < cv}
+     * ({@code cv} a multiple of the int lanes) as {@link ForwardKernels.FixedPointColumns} defines it:
+     * {@code P = acc * m0} in 64 bits, {@code x = (P + c1) >> s1}, {@code r = (x + half + ((x >> 63) & neg)) >> e},
+     * then {@code max(lo, min(r, qmax - zy) + zy)}. {@code p} holds the per-column {@code m0}, {@code half},
+     * {@code neg} and {@code e} in four sections of {@code cv} longs; within a section each block of int lanes lists
+     * its even columns, then its odd ones, which is how an int vector reinterpreted as longs holds them (low half:
+     * even lane). Every step is exact in 64 bits, and {@code r} fits an int, so the recombined low halves are the
+     * results.
+     */
+    static void requantizeRows(int[] y, int n, int out, int cv, long[] p, long c1, int s1, int zy, int lo, int qmax) {
+        int l = I.length();
+        int h = Q.length();
+        IntVector top = IntVector.broadcast(I, qmax - zy);
+        IntVector z = IntVector.broadcast(I, zy);
+        IntVector low = IntVector.broadcast(I, lo);
+        for (int c = 0; c < cv; c += l) {
+            LongVector mE = LongVector.fromArray(Q, p, c);
+            LongVector mO = LongVector.fromArray(Q, p, c + h);
+            LongVector hE = LongVector.fromArray(Q, p, cv + c);
+            LongVector hO = LongVector.fromArray(Q, p, cv + c + h);
+            LongVector nE = LongVector.fromArray(Q, p, 2 * cv + c);
+            LongVector nO = LongVector.fromArray(Q, p, 2 * cv + c + h);
+            LongVector eE = LongVector.fromArray(Q, p, 3 * cv + c);
+            LongVector eO = LongVector.fromArray(Q, p, 3 * cv + c + h);
+            for (int s = 0, q = c; s < n; s++, q += out) {
+                LongVector v = IntVector.fromArray(I, y, q).reinterpretAsLongs();
+                LongVector xe = v.lanewise(VectorOperators.LSHL, 32).lanewise(VectorOperators.ASHR, 32).mul(mE)
+                        .add(c1).lanewise(VectorOperators.ASHR, s1);
+                LongVector xo = v.lanewise(VectorOperators.ASHR, 32).mul(mO).add(c1)
+                        .lanewise(VectorOperators.ASHR, s1);
+                xe = xe.add(hE).add(xe.lanewise(VectorOperators.ASHR, 63).and(nE)).lanewise(VectorOperators.ASHR, eE);
+                xo = xo.add(hO).add(xo.lanewise(VectorOperators.ASHR, 63).and(nO)).lanewise(VectorOperators.ASHR, eO);
+                IntVector r = xe.and(0xFFFF_FFFFL).or(xo.lanewise(VectorOperators.LSHL, 32)).reinterpretAsInts();
+                r.min(top).add(z).max(low).intoArray(y, q);
+            }
         }
     }
 

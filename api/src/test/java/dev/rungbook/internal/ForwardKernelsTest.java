@@ -5,6 +5,7 @@ import static org.junit.jupiter.api.Assertions.assertEquals;
 import static org.junit.jupiter.api.Assertions.assertThrows;
 import static org.junit.jupiter.api.Assertions.assertTrue;
 
+import dev.rungbook.nn.FixedPoint;
 import java.util.SplittableRandom;
 import org.junit.jupiter.api.Test;
 
@@ -172,5 +173,73 @@ class ForwardKernelsTest {
         ForwardKernels.IntPanels p = ForwardKernels.IntPanels.of(new int[6], 2, 3);
         e = assertThrows(IllegalArgumentException.class, () -> p.accumulate(new int[5], 2, new int[2]));
         assertTrue(e.getMessage().contains("input [2, 3] needs 6 values, got 5"), e.getMessage());
+    }
+
+    @Test
+    void fixedPointColumnsAreFixedPointApplyExactly() {
+        // Source: FixedPoint.apply (the published saturating rounding doubling high multiply, then the rounding right
+        // shift, ties away from zero) and FixedPoint.applySingleRounding, both checked against worked examples and
+        // BigDecimal in FixedPointTest; then the offset and the clamp. Vector and plain paths, a tail of columns
+        // past the last whole vector, the extreme accumulators, and exact ties of both roundings (M0 = 2^30 halves
+        // the accumulator: odd accumulators tie in the high multiply, +-(2j+1) 2^n in the shift) of both signs.
+        SplittableRandom r = new SplittableRandom(41);
+        int out = 71;
+        int n = 3;
+        int[] edges = {0, 1, -1, 2, -2, 3, -3, Integer.MAX_VALUE, Integer.MIN_VALUE, Integer.MAX_VALUE - 1,
+            Integer.MIN_VALUE + 1, 1 << 30, -(1 << 30), (1 << 30) + 1, -(1 << 30) - 1, 12345, -12345};
+        for (int round = 0; round < 3000; round++) {
+            FixedPoint[] m = new FixedPoint[out];
+            int[] m0 = new int[out];
+            int[] sh = new int[out];
+            for (int c = 0; c < out; c++) {
+                int k = r.nextInt(0, 32);
+                // multipliers from 2^-32 up to just below 1, exact powers of two, and 0.5 - ulp (M0 rounds up to 1: n = 0)
+                double real = c == 0 ? Math.nextDown(0.5) : r.nextInt(4) == 0 ? Math.scalb(0.5, -k)
+                        : Math.scalb(r.nextDouble(0.5, 1.0), -k);
+                m[c] = FixedPoint.of(real);
+                m0[c] = m[c].multiplier();
+                sh[c] = m[c].shift();
+            }
+            int[] acc = new int[n * out];
+            for (int i = 0; i < acc.length; i++) {
+                int c = i % out;
+                int kind = r.nextInt(6);
+                acc[i] = kind == 0 ? edges[r.nextInt(edges.length)]
+                        : kind == 1 ? r.nextInt()
+                        : kind == 2 ? (int) Math.max(Integer.MIN_VALUE, Math.min(Integer.MAX_VALUE,
+                                (2L * r.nextInt(-2000, 2000) + 1) << Math.min(30, sh[c])))
+                        : kind == 3 ? 2 * r.nextInt(-1 << 20, 1 << 20) + 1
+                        : r.nextInt(-1 << 20, 1 << 20);
+            }
+            int zy = r.nextInt(0, 256);
+            int lo = r.nextBoolean() ? zy : 0;
+            int qmax = r.nextBoolean() ? 255 : 31;
+            zy = Math.min(zy, qmax);
+            lo = Math.min(lo, qmax);
+            for (boolean single : new boolean[] {false, true}) {
+                ForwardKernels.FixedPointColumns cols = ForwardKernels.FixedPointColumns.of(m0, sh, single);
+                for (boolean vector : new boolean[] {true, false}) {
+                    int[] y = acc.clone();
+                    cols.apply(y, n, zy, lo, qmax, vector);
+                    for (int i = 0; i < y.length; i++) {
+                        FixedPoint f = m[i % out];
+                        long v = single ? f.applySingleRounding(acc[i]) : f.apply(acc[i]);
+                        long want = Math.max(lo, Math.min(qmax, zy + v));
+                        assertEquals(want, y[i], "acc " + acc[i] + ", " + f + (single ? ", single" : ", double")
+                                + (vector ? ", vector" : ", plain"));
+                    }
+                }
+            }
+        }
+    }
+
+    @Test
+    void fixedPointColumnsRefuseShiftsTheyDoNotServe() {
+        assertThrows(IllegalArgumentException.class,
+                () -> ForwardKernels.FixedPointColumns.of(new int[] {1 << 30}, new int[] {32}, false));
+        assertThrows(IllegalArgumentException.class,
+                () -> ForwardKernels.FixedPointColumns.of(new int[] {1 << 30}, new int[] {-1}, false));
+        assertThrows(IllegalArgumentException.class,
+                () -> ForwardKernels.FixedPointColumns.of(new int[] {(1 << 30) - 1}, new int[] {3}, true));
     }
 }
