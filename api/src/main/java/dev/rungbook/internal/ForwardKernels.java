@@ -28,6 +28,7 @@ public final class ForwardKernels {
     private static final MethodHandle INT_PANEL;
     private static final MethodHandle CONV_POSITIONS;
     private static final MethodHandle REQUANTIZE;
+    private static final MethodHandle QUANTIZE;
     private static final int FLOAT_LANES;
     private static final int INT_LANES;
 
@@ -36,6 +37,7 @@ public final class ForwardKernels {
         MethodHandle ip = null;
         MethodHandle cp = null;
         MethodHandle rq = null;
+        MethodHandle qb = null;
         int floatLanes = 8;
         int intLanes = 8;
         Class<?> c = Lanes.vectorClass("dev.rungbook.internal.VectorForward");
@@ -51,6 +53,8 @@ public final class ForwardKernels {
                         int.class, float[].class, int.class, float[].class, float[].class, int.class));
                 rq = l.findStatic(c, "requantizeRows", MethodType.methodType(void.class, int[].class, int.class,
                         int.class, int.class, long[].class, long.class, int.class, int.class, int.class, int.class));
+                qb = l.findStatic(c, "quantizeBlocks", MethodType.methodType(void.class, double[].class, int.class,
+                        double.class, double.class, int[].class, int.class));
                 floatLanes = (int) l.findStatic(c, "floatLanes", MethodType.methodType(int.class)).invokeExact();
                 intLanes = (int) l.findStatic(c, "intLanes", MethodType.methodType(int.class)).invokeExact();
             } catch (Throwable e) { // no usable Vector API: the plain loops
@@ -58,6 +62,7 @@ public final class ForwardKernels {
                 ip = null;
                 cp = null;
                 rq = null;
+                qb = null;
                 floatLanes = 8;
                 intLanes = 8;
             }
@@ -66,6 +71,7 @@ public final class ForwardKernels {
         INT_PANEL = ip;
         CONV_POSITIONS = cp;
         REQUANTIZE = rq;
+        QUANTIZE = qb;
         FLOAT_LANES = floatLanes;
         INT_LANES = intLanes;
     }
@@ -284,6 +290,52 @@ public final class ForwardKernels {
             }
             return y;
         }
+    }
+
+    /**
+     * The codes {@code clamp(rint(v[i] / s) + zp, 0, qmax)} of {@code v} on an unsigned grid with scale {@code s > 0}
+     * and zero point {@code zp}, the quotient and the rounding (to nearest, ties to even) in double, NaN giving 0
+     * (as {@code (int) NaN} does); as a new array. With the Vector API the quotients are divided one by one (the
+     * same correctly rounded double division) into a scratch array and the rounding, clamp and conversion run on
+     * vectors ({@code VectorForward.quantizeBlocks}); the last elements past a whole int vector, and everything
+     * without the Vector API, run in a plain loop. The codes are the same.
+     */
+    public static int[] quantizeCodes(float[] v, double s, int zp, int qmax) {
+        return quantizeCodes(v, s, zp, qmax, QUANTIZE != null);
+    }
+
+    /** {@link #quantizeCodes(float[], double, int, int)} on the Vector API or, with {@code vector} false, plainly. */
+    static int[] quantizeCodes(float[] v, double s, int zp, int qmax, boolean vector) {
+        Checks.require(!vector || QUANTIZE != null, "quantize codes: the Vector API is not available");
+        int[] q = new int[v.length];
+        int from = 0;
+        if (vector) {
+            int l = INT_LANES;
+            int h = l / 2;
+            int m = v.length - v.length % l;
+            double[] d = new double[Math.min(m, 4096)];
+            for (int b0 = 0; b0 < m; b0 += d.length) {
+                int chunk = Math.min(d.length, m - b0);
+                for (int b = 0; b < chunk; b += l) {
+                    for (int k = 0; k < h; k++) {
+                        d[b + k] = v[b0 + b + 2 * k] / s;
+                        d[b + h + k] = v[b0 + b + 2 * k + 1] / s;
+                    }
+                }
+                try {
+                    QUANTIZE.invokeExact(d, chunk, (double) zp, (double) qmax, q, b0);
+                } catch (Throwable e) {
+                    throw unchecked(e);
+                }
+            }
+            from = m;
+        }
+        for (int i = from; i < v.length; i++) {
+            // clamp(rint(v / s) + zp, 0, qmax) by comparisons: NaN fails both and gives 0, as (int) NaN does
+            double c = Math.rint(v[i] / s) + zp;
+            q[i] = c >= qmax ? qmax : c > 0 ? (int) c : 0;
+        }
+        return q;
     }
 
     /**

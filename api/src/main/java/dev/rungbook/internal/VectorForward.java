@@ -1,5 +1,6 @@
 package dev.rungbook.internal;
 
+import jdk.incubator.vector.DoubleVector;
 import jdk.incubator.vector.FloatVector;
 import jdk.incubator.vector.IntVector;
 import jdk.incubator.vector.LongVector;
@@ -37,6 +38,8 @@ final class VectorForward {
      * (its even lanes the low halves, its odd lanes the high halves) without a change of shape.
      */
     private static final VectorSpecies<Long> Q = LongVector.SPECIES_PREFERRED;
+    /** The input quantization's lanes, as many as {@link #Q}'s. */
+    private static final VectorSpecies<Double> D = DoubleVector.SPECIES_PREFERRED;
     /**
      * The convolution kernel's vectors: 256-bit, the shape of the library's other float-vector code, since this kernel
      * needs separate multiplies and adds (see {@link #F}).
@@ -505,6 +508,33 @@ final class VectorForward {
                 IntVector r = xe.and(0xFFFF_FFFFL).or(xo.lanewise(VectorOperators.LSHL, 32)).reinterpretAsInts();
                 r.min(top).add(z).max(low).intoArray(y, q);
             }
+        }
+    }
+
+    /**
+     * {@code q[qo + i] = clamp(rint(u[i]) + zp, 0, qmax)} for {@code i < m} ({@code m} a multiple of the int lanes), NaN
+     * giving 0, where the quotients {@code u} are laid out in {@code d} as {@link ForwardKernels#quantizeCodes}
+     * writes them: per block of int lanes, the even elements' quotients, then the odd ones'. {@code rint} is
+     * {@code (u + 1.5 * 2^52) - 1.5 * 2^52} (exact to the nearest integer, ties to even, for {@code |u| <= 2^51};
+     * larger magnitudes keep their sign and clamp to the same end); the clamp is two comparisons (false for NaN);
+     * each code is the low half of the bits of {@code code + 2^52}.
+     */
+    static void quantizeBlocks(double[] d, int m, double zp, double qmax, int[] q, int qo) {
+        int l = I.length();
+        int h = D.length();
+        DoubleVector magic = DoubleVector.broadcast(D, 0x1.8p52);
+        DoubleVector z = DoubleVector.broadcast(D, zp);
+        DoubleVector top = DoubleVector.broadcast(D, qmax);
+        DoubleVector zero = DoubleVector.zero(D);
+        DoubleVector two52 = DoubleVector.broadcast(D, 0x1p52);
+        for (int b = 0; b < m; b += l) {
+            DoubleVector ce = DoubleVector.fromArray(D, d, b).add(magic).sub(magic).add(z);
+            DoubleVector co = DoubleVector.fromArray(D, d, b + h).add(magic).sub(magic).add(z);
+            ce = zero.blend(ce, ce.compare(VectorOperators.GT, zero)).blend(top, ce.compare(VectorOperators.GE, top));
+            co = zero.blend(co, co.compare(VectorOperators.GT, zero)).blend(top, co.compare(VectorOperators.GE, top));
+            LongVector e = ce.add(two52).reinterpretAsLongs().and(0xFFFF_FFFFL);
+            LongVector o = co.add(two52).reinterpretAsLongs().lanewise(VectorOperators.LSHL, 32);
+            e.or(o).reinterpretAsInts().intoArray(q, qo + b);
         }
     }
 

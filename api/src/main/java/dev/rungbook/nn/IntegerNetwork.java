@@ -357,19 +357,12 @@ public final class IntegerNetwork {
         return inputZeroPoint;
     }
 
-    /** Quantizes float inputs [N, in] to the input grid. */
+    /**
+     * Quantizes float inputs [N, in] to the input grid: {@code clamp(rint(v / S_x) + z_x, 0, 2^bits - 1)} in double,
+     * NaN giving 0.
+     */
     public int[] quantizeInput(Tensor x) {
-        float[] v = TensorAccess.data(x);
-        int qmax = (1 << bits) - 1;
-        int[] q = new int[v.length];
-        double s = inputScale;
-        int zp = inputZeroPoint;
-        for (int i = 0; i < v.length; i++) {
-            // clamp(rint(v / s) + zp, 0, qmax) by comparisons: NaN fails both and gives 0, as (int) NaN does
-            double c = Math.rint(v[i] / s) + zp;
-            q[i] = c >= qmax ? qmax : c > 0 ? (int) c : 0;
-        }
-        return q;
+        return ForwardKernels.quantizeCodes(TensorAccess.data(x), inputScale, inputZeroPoint, (1 << bits) - 1);
     }
 
     /**

@@ -242,4 +242,39 @@ class ForwardKernelsTest {
         assertThrows(IllegalArgumentException.class,
                 () -> ForwardKernels.FixedPointColumns.of(new int[] {(1 << 30) - 1}, new int[] {3}, true));
     }
+
+    @Test
+    void quantizeCodesAreTheClampedRoundedQuotient() {
+        // Source: the definition clamp(rint(v / s) + zp, 0, qmax) with Math.rint (ties to even) and Math.min/max in
+        // double, NaN giving 0 as (int) NaN does. Exact ties: s = 0.25 makes v = k/8 a quotient k/2; values far
+        // outside the grid (beyond 2^51 after the division, where the vector rounding's magic constant stops being
+        // exact) and the special values; lengths with and without a tail past the last whole vector.
+        SplittableRandom r = new SplittableRandom(47);
+        double[] scales = {0.25, 0.0213, 1e-30, 3.7e5};
+        for (int len : new int[] {1, 15, 16, 17, 513, 9000}) {
+            for (double s : scales) {
+                float[] v = new float[len];
+                for (int i = 0; i < len; i++) {
+                    int kind = r.nextInt(8);
+                    v[i] = kind == 0 ? (float) (r.nextInt(-2100, 2100) / 8.0)
+                            : kind == 1 ? new float[] {Float.NaN, -0.0f, 0.0f, Float.POSITIVE_INFINITY,
+                                Float.NEGATIVE_INFINITY, Float.MAX_VALUE, -Float.MAX_VALUE, Float.MIN_VALUE,
+                                0x1p51f, -0x1p51f, 0x1p52f, 0x1.8p52f}[r.nextInt(12)]
+                            : (float) (r.nextGaussian() * s * 100);
+                }
+                for (int[] grid : new int[][] {{0, 255}, {128, 255}, {3, 15}}) {
+                    int zp = grid[0];
+                    int qmax = grid[1];
+                    int[] vector = ForwardKernels.quantizeCodes(v, s, zp, qmax, true);
+                    int[] plain = ForwardKernels.quantizeCodes(v, s, zp, qmax, false);
+                    for (int i = 0; i < len; i++) {
+                        double c = Math.rint(v[i] / s) + zp;
+                        int want = Double.isNaN(c) ? 0 : (int) Math.max(0, Math.min(qmax, c));
+                        assertEquals(want, vector[i], "vector, value " + v[i] + ", scale " + s + ", zp " + zp);
+                        assertEquals(want, plain[i], "plain, value " + v[i] + ", scale " + s + ", zp " + zp);
+                    }
+                }
+            }
+        }
+    }
 }
