@@ -29,6 +29,7 @@ public final class ForwardKernels {
     private static final MethodHandle CONV_POSITIONS;
     private static final MethodHandle REQUANTIZE;
     private static final MethodHandle QUANTIZE;
+    private static final MethodHandle INT_CODES;
     private static final int FLOAT_LANES;
     private static final int INT_LANES;
 
@@ -38,6 +39,7 @@ public final class ForwardKernels {
         MethodHandle cp = null;
         MethodHandle rq = null;
         MethodHandle qb = null;
+        MethodHandle ic = null;
         int floatLanes = 8;
         int intLanes = 8;
         Class<?> c = Lanes.vectorClass("dev.rungbook.internal.VectorForward");
@@ -55,6 +57,9 @@ public final class ForwardKernels {
                         int.class, int.class, long[].class, long.class, int.class, int.class, int.class, int.class));
                 qb = l.findStatic(c, "quantizeBlocks", MethodType.methodType(void.class, double[].class, int.class,
                         double.class, double.class, int[].class, int.class));
+                ic = l.findStatic(c, "intLayerCodes", MethodType.methodType(void.class, int[].class, int.class,
+                        int.class, int[].class, int[].class, int.class, int[].class, int.class, long[].class,
+                        int.class, long.class, int.class, int.class, int.class, int.class));
                 floatLanes = (int) l.findStatic(c, "floatLanes", MethodType.methodType(int.class)).invokeExact();
                 intLanes = (int) l.findStatic(c, "intLanes", MethodType.methodType(int.class)).invokeExact();
             } catch (Throwable e) { // no usable Vector API: the plain loops
@@ -63,6 +68,7 @@ public final class ForwardKernels {
                 cp = null;
                 rq = null;
                 qb = null;
+                ic = null;
                 floatLanes = 8;
                 intLanes = 8;
             }
@@ -72,6 +78,7 @@ public final class ForwardKernels {
         CONV_POSITIONS = cp;
         REQUANTIZE = rq;
         QUANTIZE = qb;
+        INT_CODES = ic;
         FLOAT_LANES = floatLanes;
         INT_LANES = intLanes;
     }
@@ -290,6 +297,52 @@ public final class ForwardKernels {
             }
             return y;
         }
+
+        /**
+         * The codes of {@code acc = init + x W^T} (int32, wrapping, as {@link #accumulate(int[], int, int[])}) on
+         * the output grid: each accumulator requantized by {@code columns} and clamped to {@code [lo, qmax]} after
+         * adding the zero point {@code zy} ({@link FixedPointColumns#apply}), as a new array. With the Vector API the
+         * panels whose columns all lie in whole int vectors requantize each block of accumulators while it is in
+         * registers, so the int32 sums never go to an array of the layer's size; the rest accumulate, then
+         * requantize. The codes are the same either way.
+         */
+        public int[] codes(int[] x, int n, int[] init, FixedPointColumns columns, int zy, int lo, int qmax) {
+            return codes(x, n, init, columns, zy, lo, qmax, INT_CODES != null);
+        }
+
+        /** {@link #codes(int[], int, int[], FixedPointColumns, int, int, int)}; {@code vector} false: plain loops. */
+        int[] codes(int[] x, int n, int[] init, FixedPointColumns columns, int zy, int lo, int qmax, boolean vector) {
+            Checks.require(!vector || INT_CODES != null, "int panels: the Vector API is not available");
+            Checks.require(columns.out() == out, "int panels: %d requantization columns for %d outputs",
+                    columns.out(), out);
+            if (!vector) {
+                int[] y = accumulate(x, n, init, false);
+                columns.apply(y, n, zy, lo, qmax, false);
+                return y;
+            }
+            checkInput(n, in, x.length, "int panels");
+            Checks.require(init.length == out, "int panels: %d initial values for %d outputs", init.length, out);
+            int[] y = new int[n * out];
+            if (n == 0 || out == 0) {
+                return y;
+            }
+            int[] pi = new int[paddedColumns(out, INT_LANES)];
+            System.arraycopy(init, 0, pi, 0, out);
+            // the two-vector panels whose columns all lie in the requantization's vector blocks
+            int full = columns.vectorColumns() / (2 * INT_LANES);
+            int done = full * 2 * INT_LANES;
+            try {
+                INT_CODES.invokeExact(x, n, in, w, pi, full, y, out, columns.constants(), columns.vectorColumns(),
+                        columns.c1(), columns.s1(), zy, lo, qmax);
+                for (int j0 = done; j0 < out; j0 += panelWidth(j0, out, INT_LANES)) {
+                    INT_PANEL.invokeExact(x, n, in, w, j0 * in, pi, j0, panelWidth(j0, out, INT_LANES), y, out);
+                }
+            } catch (Throwable e) {
+                throw unchecked(e);
+            }
+            columns.applyPlain(y, n, done, zy, lo, qmax);
+            return y;
+        }
     }
 
     /**
@@ -433,6 +486,26 @@ public final class ForwardKernels {
             return out;
         }
 
+        /** Columns served by whole int vectors (a multiple of the int lanes). */
+        int vectorColumns() {
+            return cv;
+        }
+
+        /** The per-column constants, laid out as {@code VectorForward.requantizeRows} reads them. */
+        long[] constants() {
+            return p;
+        }
+
+        /** The first step's added constant: {@code 2^30} (double rounding) or 0. */
+        long c1() {
+            return c1;
+        }
+
+        /** The first step's shift: 31 (double rounding) or 0. */
+        int s1() {
+            return s1;
+        }
+
         /**
          * Replaces each accumulator {@code y[s out + c]} ({@code s < n}) by its code, clamped to
          * {@code [lo, qmax]} after adding the zero point {@code zy}.
@@ -454,6 +527,11 @@ public final class ForwardKernels {
                 }
                 from = cv;
             }
+            applyPlain(y, n, from, zy, lo, qmax);
+        }
+
+        /** The plain loop of {@link #apply} for the columns from {@code from} on. */
+        void applyPlain(int[] y, int n, int from, int zy, int lo, int qmax) {
             int top = qmax - zy;
             for (int c = from; c < out; c++) {
                 int k = position(c, cv);

@@ -338,6 +338,130 @@ final class VectorForward {
         }
     }
 
+    /**
+     * The first {@code panels} two-vector panels of an integer layer, requantized: {@code y[s out + c]} becomes the
+     * code of {@code init[c] + sum_t x[s, t] W[c, t]} (int32, wrapping) by the constants {@code p} (see
+     * {@link #requantizeRows}, {@code cv} columns in vector blocks), for every row {@code s < n} and column
+     * {@code c < panels * 2 L}. Each block of rows keeps its accumulators in registers as {@link #intPanel} does,
+     * then moves them through a small scratch tile, which stays in the level-1 cache, to {@link #requantizeTile}:
+     * the int32 sums never go to an array of the layer's size.
+     */
+    static void intLayerCodes(int[] x, int n, int in, int[] pw, int[] pi, int panels, int[] y, int out, long[] p,
+            int cv, long c1, int s1, int zy, int lo, int qmax) {
+        int l = I.length();
+        int[] tile = new int[8 * l];
+        int n4 = n & ~3;
+        for (int k = 0; k < panels; k++) {
+            int j0 = 2 * l * k;
+            codesTwo4(x, n4, in, pw, j0 * in, pi, j0, y, out, tile, p, cv, c1, s1, zy, lo, qmax);
+            codesTwo1(x, n4, n, in, pw, j0 * in, pi, j0, y, out, tile, p, cv, c1, s1, zy, lo, qmax);
+        }
+    }
+
+    /** Rows {@code [0, n4)} ({@code n4} a multiple of 4) of {@link #intLayerCodes}'s panel at {@code j0}. */
+    private static void codesTwo4(int[] x, int n4, int in, int[] pw, int po, int[] pb, int j0, int[] y, int out,
+            int[] tile, long[] p, int cv, long c1, int s1, int zy, int lo, int qmax) {
+        int l = I.length();
+        IntVector b0 = IntVector.fromArray(I, pb, j0);
+        IntVector b1 = IntVector.fromArray(I, pb, j0 + l);
+        for (int i = 0; i < n4; i += 4) {
+            int x0 = i * in;
+            int x1 = x0 + in;
+            int x2 = x1 + in;
+            int x3 = x2 + in;
+            IntVector c00 = b0;
+            IntVector c01 = b1;
+            IntVector c10 = b0;
+            IntVector c11 = b1;
+            IntVector c20 = b0;
+            IntVector c21 = b1;
+            IntVector c30 = b0;
+            IntVector c31 = b1;
+            for (int t = 0, q = po; t < in; t++, q += 2 * l) {
+                IntVector w0 = IntVector.fromArray(I, pw, q);
+                IntVector w1 = IntVector.fromArray(I, pw, q + l);
+                IntVector a = IntVector.broadcast(I, x[x0 + t]);
+                c00 = c00.add(w0.mul(a));
+                c01 = c01.add(w1.mul(a));
+                a = IntVector.broadcast(I, x[x1 + t]);
+                c10 = c10.add(w0.mul(a));
+                c11 = c11.add(w1.mul(a));
+                a = IntVector.broadcast(I, x[x2 + t]);
+                c20 = c20.add(w0.mul(a));
+                c21 = c21.add(w1.mul(a));
+                a = IntVector.broadcast(I, x[x3 + t]);
+                c30 = c30.add(w0.mul(a));
+                c31 = c31.add(w1.mul(a));
+            }
+            c00.intoArray(tile, 0);
+            c01.intoArray(tile, l);
+            c10.intoArray(tile, 2 * l);
+            c11.intoArray(tile, 3 * l);
+            c20.intoArray(tile, 4 * l);
+            c21.intoArray(tile, 5 * l);
+            c30.intoArray(tile, 6 * l);
+            c31.intoArray(tile, 7 * l);
+            requantizeTile(tile, 4, y, i * out + j0, out, j0, p, cv, c1, s1, zy, lo, qmax);
+        }
+    }
+
+    /** Rows {@code [i0, i1)} of {@link #intLayerCodes}'s panel at {@code j0}, one at a time. */
+    private static void codesTwo1(int[] x, int i0, int i1, int in, int[] pw, int po, int[] pb, int j0, int[] y,
+            int out, int[] tile, long[] p, int cv, long c1, int s1, int zy, int lo, int qmax) {
+        int l = I.length();
+        IntVector b0 = IntVector.fromArray(I, pb, j0);
+        IntVector b1 = IntVector.fromArray(I, pb, j0 + l);
+        for (int i = i0; i < i1; i++) {
+            int x0 = i * in;
+            IntVector c0 = b0;
+            IntVector c1v = b1;
+            for (int t = 0, q = po; t < in; t++, q += 2 * l) {
+                IntVector a = IntVector.broadcast(I, x[x0 + t]);
+                c0 = c0.add(IntVector.fromArray(I, pw, q).mul(a));
+                c1v = c1v.add(IntVector.fromArray(I, pw, q + l).mul(a));
+            }
+            c0.intoArray(tile, 0);
+            c1v.intoArray(tile, l);
+            requantizeTile(tile, 1, y, i * out + j0, out, j0, p, cv, c1, s1, zy, lo, qmax);
+        }
+    }
+
+    /**
+     * Requantizes {@code rows} rows of two int vectors each from {@code tile} (row stride {@code 2 L}), columns
+     * {@code j0 .. j0 + 2 L}, into {@code y} from {@code y0} (row stride {@code out}); the arithmetic of
+     * {@link #requantizeRows}.
+     */
+    private static void requantizeTile(int[] tile, int rows, int[] y, int y0, int out, int j0, long[] p, int cv,
+            long c1, int s1, int zy, int lo, int qmax) {
+        int l = I.length();
+        int h = Q.length();
+        IntVector top = IntVector.broadcast(I, qmax - zy);
+        IntVector z = IntVector.broadcast(I, zy);
+        IntVector low = IntVector.broadcast(I, lo);
+        for (int v = 0; v < 2; v++) {
+            int c = j0 + v * l;
+            LongVector mE = LongVector.fromArray(Q, p, c);
+            LongVector mO = LongVector.fromArray(Q, p, c + h);
+            LongVector hE = LongVector.fromArray(Q, p, cv + c);
+            LongVector hO = LongVector.fromArray(Q, p, cv + c + h);
+            LongVector nE = LongVector.fromArray(Q, p, 2 * cv + c);
+            LongVector nO = LongVector.fromArray(Q, p, 2 * cv + c + h);
+            LongVector eE = LongVector.fromArray(Q, p, 3 * cv + c);
+            LongVector eO = LongVector.fromArray(Q, p, 3 * cv + c + h);
+            for (int r = 0; r < rows; r++) {
+                LongVector a = IntVector.fromArray(I, tile, (2 * r + v) * l).reinterpretAsLongs();
+                LongVector xe = a.lanewise(VectorOperators.LSHL, 32).lanewise(VectorOperators.ASHR, 32).mul(mE)
+                        .add(c1).lanewise(VectorOperators.ASHR, s1);
+                LongVector xo = a.lanewise(VectorOperators.ASHR, 32).mul(mO).add(c1)
+                        .lanewise(VectorOperators.ASHR, s1);
+                xe = xe.add(hE).add(xe.lanewise(VectorOperators.ASHR, 63).and(nE)).lanewise(VectorOperators.ASHR, eE);
+                xo = xo.add(hO).add(xo.lanewise(VectorOperators.ASHR, 63).and(nO)).lanewise(VectorOperators.ASHR, eO);
+                IntVector q = xe.and(0xFFFF_FFFFL).or(xo.lanewise(VectorOperators.LSHL, 32)).reinterpretAsInts();
+                q.min(top).add(z).max(low).intoArray(y, y0 + r * out + v * l);
+            }
+        }
+    }
+
     /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 4) of a two-vector int panel. */
     private static void intTwo4(int[] x, int i0, int i1, int in, int[] pw, int po, int[] pb, int j0, int[] y, int out,
             int cols) {

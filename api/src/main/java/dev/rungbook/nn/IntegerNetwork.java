@@ -414,13 +414,12 @@ public final class IntegerNetwork {
         for (int c = 0; c < out; c++) {
             folded[c] = l.bias[c] - zx * l.weightSums[c];
         }
-        int[] y = l.panels.accumulate(a, n, folded);
         boolean single = requantization == Requantization.SINGLE_ROUNDING;
         ForwardKernels.FixedPointColumns columns = single ? l.singleRounding : l.doubleRounding;
         if (fixedPoint && columns != null) {
-            columns.apply(y, n, l.outputZeroPoint, lo, qmax);
-            return y;
+            return l.panels.codes(a, n, folded, columns, l.outputZeroPoint, lo, qmax);
         }
+        int[] y = l.panels.accumulate(a, n, folded);
         for (int s = 0; s < n; s++) {
             int row = s * out;
             for (int c = 0; c < out; c++) {

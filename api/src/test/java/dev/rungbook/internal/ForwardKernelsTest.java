@@ -277,4 +277,45 @@ class ForwardKernelsTest {
             }
         }
     }
+
+    @Test
+    void intPanelCodesAreTheRequantizedReferenceSums() {
+        // Source: referenceAccumulate (the one-output-at-a-time int32 loop, itself checked against long sums above)
+        // followed by FixedPoint.apply / applySingleRounding per output, the offset and the clamp. Output widths
+        // with and without whole two-vector panels, one-vector panels and a tail; row counts with a remainder.
+        SplittableRandom r = new SplittableRandom(53);
+        for (int n : new int[] {1, 3, 17, 66}) {
+            for (int in : new int[] {1, 3, 72}) {
+                for (int out : new int[] {1, 5, 17, 33, 48, 64, 70, 129}) {
+                    int[] x = ints(r, n * in, 0, 255);
+                    int[] w = ints(r, out * in, -128, 127);
+                    int[] init = ints(r, out, -3_000_000, 3_000_000);
+                    FixedPoint[] m = new FixedPoint[out];
+                    int[] m0 = new int[out];
+                    int[] sh = new int[out];
+                    for (int c = 0; c < out; c++) {
+                        m[c] = FixedPoint.of(Math.scalb(r.nextDouble(0.5, 1.0), -r.nextInt(8, 20)));
+                        m0[c] = m[c].multiplier();
+                        sh[c] = m[c].shift();
+                    }
+                    int[] acc = ForwardKernels.referenceAccumulate(x, n, w, init, in, out);
+                    ForwardKernels.IntPanels p = ForwardKernels.IntPanels.of(w, out, in);
+                    int zy = r.nextInt(0, 256);
+                    int lo = r.nextBoolean() ? zy : 0;
+                    for (boolean single : new boolean[] {false, true}) {
+                        ForwardKernels.FixedPointColumns cols = ForwardKernels.FixedPointColumns.of(m0, sh, single);
+                        int[] want = new int[n * out];
+                        for (int i = 0; i < want.length; i++) {
+                            FixedPoint f = m[i % out];
+                            long v = single ? f.applySingleRounding(acc[i]) : f.apply(acc[i]);
+                            want[i] = (int) Math.max(lo, Math.min(255, zy + v));
+                        }
+                        String shape = n + " x " + in + " -> " + out + (single ? ", single" : ", double");
+                        assertArrayEquals(want, p.codes(x, n, init, cols, zy, lo, 255, true), "vector, " + shape);
+                        assertArrayEquals(want, p.codes(x, n, init, cols, zy, lo, 255, false), "plain, " + shape);
+                    }
+                }
+            }
+        }
+    }
 }
