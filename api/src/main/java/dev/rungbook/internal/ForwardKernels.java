@@ -22,6 +22,11 @@ import java.lang.invoke.MethodType;
  * increasing order, each float step one fused multiply-add ({@link Math#fma}), exactly as
  * {@link #referenceAffine}; the results are those of the reference loops bit for bit (integers: exactly, int32
  * arithmetic wrapping as Java's does).
+ *
+ * <p>The integer-only network's other steps live here too: {@link FixedPointColumns} (per-column fixed-point
+ * requantization, applied by {@link IntPanels#codes} to each block of accumulators as it leaves the registers) and
+ * {@link #quantizeCodes} (input quantization); with the Vector API they run on 64-bit and double lanes, otherwise in
+ * plain loops, with the same integers.
  */
 public final class ForwardKernels {
     private static final MethodHandle FLOAT_PANEL;

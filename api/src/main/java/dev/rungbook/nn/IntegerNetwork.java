@@ -400,7 +400,10 @@ public final class IntegerNetwork {
      * multiplier rounded half up. The input zero point is folded into the bias:
      * {@code sum_j w_j (a_j - zx) = sum_j w_j a_j - zx sum_j w_j}, the same int32 value. The products run in
      * {@link ForwardKernels.IntPanels} (packed weights, blocks of samples and output columns held in registers) when
-     * the Vector API is there, else in {@link #layerCodesPlain}; the codes are the same.
+     * the Vector API is there, else in {@link #layerCodesPlain}; the codes are the same. With fixed-point
+     * requantization and every shift in [0, 31] (the usual case: multipliers below 1, not below 2^-32) each block is
+     * requantized as it leaves the registers ({@link ForwardKernels.IntPanels#codes}, in 64-bit vector lanes);
+     * otherwise the accumulators are requantized one by one by {@link FixedPoint}.
      */
     int[] layerCodes(int i, int[] a, int zx, int n, boolean fixedPoint) {
         IntLayer l = layers.get(i);
