@@ -22,11 +22,19 @@ import java.lang.invoke.MethodType;
  * increasing order, each float step one fused multiply-add ({@link Math#fma}), exactly as
  * {@link #referenceAffine}; the results are those of the reference loops bit for bit (integers: exactly, int32
  * arithmetic wrapping as Java's does).
+ *
+ * <p>The integer-only network's other steps live here too: {@link FixedPointColumns} (per-column fixed-point
+ * requantization, applied by {@link IntPanels#codes} to each block of accumulators as it leaves the registers) and
+ * {@link #quantizeCodes} (input quantization); with the Vector API they run on 64-bit and double lanes, otherwise in
+ * plain loops, with the same integers.
  */
 public final class ForwardKernels {
     private static final MethodHandle FLOAT_PANEL;
     private static final MethodHandle INT_PANEL;
     private static final MethodHandle CONV_POSITIONS;
+    private static final MethodHandle REQUANTIZE;
+    private static final MethodHandle QUANTIZE;
+    private static final MethodHandle INT_CODES;
     private static final int FLOAT_LANES;
     private static final int INT_LANES;
 
@@ -34,6 +42,9 @@ public final class ForwardKernels {
         MethodHandle fp = null;
         MethodHandle ip = null;
         MethodHandle cp = null;
+        MethodHandle rq = null;
+        MethodHandle qb = null;
+        MethodHandle ic = null;
         int floatLanes = 8;
         int intLanes = 8;
         Class<?> c = Lanes.vectorClass("dev.rungbook.internal.VectorForward");
@@ -47,12 +58,22 @@ public final class ForwardKernels {
                         int[].class, int.class, int[].class, int.class, int.class, int[].class, int.class));
                 cp = l.findStatic(c, "convPositions", MethodType.methodType(void.class, float[].class, int.class,
                         int.class, float[].class, int.class, float[].class, float[].class, int.class));
+                rq = l.findStatic(c, "requantizeRows", MethodType.methodType(void.class, int[].class, int.class,
+                        int.class, int.class, long[].class, long.class, int.class, int.class, int.class, int.class));
+                qb = l.findStatic(c, "quantizeBlocks", MethodType.methodType(void.class, double[].class, int.class,
+                        double.class, double.class, int[].class, int.class));
+                ic = l.findStatic(c, "intLayerCodes", MethodType.methodType(void.class, int[].class, int.class,
+                        int.class, int[].class, int[].class, int.class, int[].class, int.class, long[].class,
+                        int.class, long.class, int.class, int.class, int.class, int.class));
                 floatLanes = (int) l.findStatic(c, "floatLanes", MethodType.methodType(int.class)).invokeExact();
                 intLanes = (int) l.findStatic(c, "intLanes", MethodType.methodType(int.class)).invokeExact();
             } catch (Throwable e) { // no usable Vector API: the plain loops
                 fp = null;
                 ip = null;
                 cp = null;
+                rq = null;
+                qb = null;
+                ic = null;
                 floatLanes = 8;
                 intLanes = 8;
             }
@@ -60,6 +81,9 @@ public final class ForwardKernels {
         FLOAT_PANEL = fp;
         INT_PANEL = ip;
         CONV_POSITIONS = cp;
+        REQUANTIZE = rq;
+        QUANTIZE = qb;
+        INT_CODES = ic;
         FLOAT_LANES = floatLanes;
         INT_LANES = intLanes;
     }
@@ -277,6 +301,256 @@ public final class ForwardKernels {
                 }
             }
             return y;
+        }
+
+        /**
+         * The codes of {@code acc = init + x W^T} (int32, wrapping, as {@link #accumulate(int[], int, int[])}) on
+         * the output grid: each accumulator requantized by {@code columns} and clamped to {@code [lo, qmax]} after
+         * adding the zero point {@code zy} ({@link FixedPointColumns#apply}), as a new array. With the Vector API the
+         * panels whose columns all lie in whole int vectors requantize each block of accumulators while it is in
+         * registers, so the int32 sums never go to an array of the layer's size; the rest accumulate, then
+         * requantize. The codes are the same either way.
+         */
+        public int[] codes(int[] x, int n, int[] init, FixedPointColumns columns, int zy, int lo, int qmax) {
+            return codes(x, n, init, columns, zy, lo, qmax, INT_CODES != null);
+        }
+
+        /** {@link #codes(int[], int, int[], FixedPointColumns, int, int, int)}; {@code vector} false: plain loops. */
+        int[] codes(int[] x, int n, int[] init, FixedPointColumns columns, int zy, int lo, int qmax, boolean vector) {
+            Checks.require(!vector || INT_CODES != null, "int panels: the Vector API is not available");
+            Checks.require(columns.out() == out, "int panels: %d requantization columns for %d outputs",
+                    columns.out(), out);
+            if (!vector) {
+                int[] y = accumulate(x, n, init, false);
+                columns.apply(y, n, zy, lo, qmax, false);
+                return y;
+            }
+            checkInput(n, in, x.length, "int panels");
+            Checks.require(init.length == out, "int panels: %d initial values for %d outputs", init.length, out);
+            int[] y = new int[n * out];
+            if (n == 0 || out == 0) {
+                return y;
+            }
+            int[] pi = new int[paddedColumns(out, INT_LANES)];
+            System.arraycopy(init, 0, pi, 0, out);
+            // the two-vector panels whose columns all lie in the requantization's vector blocks
+            int full = columns.vectorColumns() / (2 * INT_LANES);
+            int done = full * 2 * INT_LANES;
+            try {
+                INT_CODES.invokeExact(x, n, in, w, pi, full, y, out, columns.constants(), columns.vectorColumns(),
+                        columns.c1(), columns.s1(), zy, lo, qmax);
+                for (int j0 = done; j0 < out; j0 += panelWidth(j0, out, INT_LANES)) {
+                    INT_PANEL.invokeExact(x, n, in, w, j0 * in, pi, j0, panelWidth(j0, out, INT_LANES), y, out);
+                }
+            } catch (Throwable e) {
+                throw unchecked(e);
+            }
+            columns.applyPlain(y, n, done, zy, lo, qmax);
+            return y;
+        }
+    }
+
+    /**
+     * The codes {@code clamp(rint(v[i] / s) + zp, 0, qmax)} of {@code v} on an unsigned grid with scale {@code s > 0}
+     * and zero point {@code zp}, the quotient and the rounding (to nearest, ties to even) in double, NaN giving 0
+     * (as {@code (int) NaN} does); as a new array. With the Vector API the quotients are divided one by one (the
+     * same correctly rounded double division) into a scratch array and the rounding, clamp and conversion run on
+     * vectors ({@code VectorForward.quantizeBlocks}); the last elements past a whole int vector, and everything
+     * without the Vector API, run in a plain loop. The codes are the same.
+     */
+    public static int[] quantizeCodes(float[] v, double s, int zp, int qmax) {
+        return quantizeCodes(v, s, zp, qmax, QUANTIZE != null);
+    }
+
+    /** {@link #quantizeCodes(float[], double, int, int)} on the Vector API or, with {@code vector} false, plainly. */
+    static int[] quantizeCodes(float[] v, double s, int zp, int qmax, boolean vector) {
+        Checks.require(!vector || QUANTIZE != null, "quantize codes: the Vector API is not available");
+        int[] q = new int[v.length];
+        int from = 0;
+        if (vector) {
+            int l = INT_LANES;
+            int h = l / 2;
+            int m = v.length - v.length % l;
+            double[] d = new double[Math.min(m, 4096)];
+            for (int b0 = 0; b0 < m; b0 += d.length) {
+                int chunk = Math.min(d.length, m - b0);
+                for (int b = 0; b < chunk; b += l) {
+                    for (int k = 0; k < h; k++) {
+                        d[b + k] = v[b0 + b + 2 * k] / s;
+                        d[b + h + k] = v[b0 + b + 2 * k + 1] / s;
+                    }
+                }
+                try {
+                    QUANTIZE.invokeExact(d, chunk, (double) zp, (double) qmax, q, b0);
+                } catch (Throwable e) {
+                    throw unchecked(e);
+                }
+            }
+            from = m;
+        }
+        for (int i = from; i < v.length; i++) {
+            // clamp(rint(v / s) + zp, 0, qmax) by comparisons: NaN fails both and gives 0, as (int) NaN does
+            double c = Math.rint(v[i] / s) + zp;
+            q[i] = c >= qmax ? qmax : c > 0 ? (int) c : 0;
+        }
+        return q;
+    }
+
+    /**
+     * Per-column fixed-point requantization of int32 accumulators to clamped output codes, the integer-only rounding
+     * of {@code dev.rungbook.nn.FixedPoint} in one form for every column: with {@code P = acc * m0} in 64 bits,
+     * <pre>
+     *   x = (P + c1) >> s1,   r = (x + half + ((x >> 63) &amp; neg)) >> e,   code = max(lo, min(r, qmax - zy) + zy)
+     * </pre>
+     * Double rounding (the published saturating rounding doubling high multiply, then the rounding right shift by
+     * the column's {@code n} in [0, 31]): {@code c1 = 2^30, s1 = 31} and {@code e = n}, {@code half = 2^(n-1)},
+     * {@code neg = -1} (0, 0 when {@code n = 0}). Single rounding (one shift by {@code k = 31 + n}, ties away from
+     * zero): {@code c1 = 0, s1 = 0, e = k, half = 2^(k-1), neg = -1}. Why these are the published operations:
+     * <ul>
+     * <li>the high multiply adds {@code 2^30} to a non-negative {@code P} and {@code 1 - 2^30} to a negative one,
+     * then divides by {@code 2^31} truncating toward zero; a negative sum {@code t} truncates to
+     * {@code floor((t + 2^31 - 1) / 2^31)}, and {@code (P + 1 - 2^30) + 2^31 - 1 = P + 2^30}, so both cases are
+     * {@code floor((P + 2^30) / 2^31)}; it cannot saturate, since {@code m0 >= 2^30} is never {@code INT32_MIN};
+     * <li>the rounding right shift adds 1 to {@code x >> e} when the remainder {@code x mod 2^e} exceeds
+     * {@code 2^(e-1) - 1} ({@code x >= 0}) or {@code 2^(e-1)} ({@code x < 0}), which is
+     * {@code floor((x + 2^(e-1) - [x < 0]) / 2^e)}, and {@code x} itself when {@code e = 0};
+     * <li>the single rounding's {@code -((2^(k-1) - P) >> k)} for negative {@code P} is
+     * {@code floor((P + 2^(k-1) - 1) / 2^k)} the same way; its result fits an int for {@code k >= 31}, so it never
+     * saturates;
+     * <li>no sum overflows 64 bits ({@code |P| < 2^62}), every {@code r} fits an int, and clamping {@code r} below
+     * {@code qmax - zy} before adding {@code zy} is clamping after.
+     * </ul>
+     * With the Vector API the columns below the last whole int vector run in {@code VectorForward} (64-bit lanes);
+     * the others, and everything without the Vector API, in a plain loop of the same formula. Immutable.
+     */
+    public static final class FixedPointColumns {
+        private final int out;
+        private final int cv;
+        private final long[] p;
+        private final long c1;
+        private final int s1;
+
+        private FixedPointColumns(int out, int cv, long[] p, long c1, int s1) {
+            this.out = out;
+            this.cv = cv;
+            this.p = p;
+            this.c1 = c1;
+            this.s1 = s1;
+        }
+
+        /**
+         * The constants for columns with multipliers {@code m0} (Q31, in [2^30, 2^31)) and shifts {@code n}
+         * (in [0, 31]), for the published double rounding or ({@code singleRounding}) the single one.
+         *
+         * @throws IllegalArgumentException naming the column whose multiplier or shift is out of range
+         */
+        public static FixedPointColumns of(int[] m0, int[] shift, boolean singleRounding) {
+            Checks.require(m0.length == shift.length, "fixed-point columns: %d multipliers for %d shifts", m0.length,
+                    shift.length);
+            int out = m0.length;
+            for (int c = 0; c < out; c++) {
+                Checks.require(m0[c] >= (1 << 30), "fixed-point columns: multiplier %d of column %d is below 2^30",
+                        m0[c], c);
+                Checks.require(shift[c] >= 0 && shift[c] <= 31,
+                        "fixed-point columns: shift %d of column %d is outside [0, 31]", shift[c], c);
+            }
+            int cv = out - out % INT_LANES;
+            long[] p = new long[4 * out];
+            for (int c = 0; c < out; c++) {
+                int e = singleRounding ? 31 + shift[c] : shift[c];
+                int at = position(c, cv);
+                int stride = stride(c, out, cv);
+                p[at] = m0[c];
+                p[at + stride] = e == 0 ? 0 : 1L << (e - 1);
+                p[at + 2 * stride] = e == 0 ? 0 : -1;
+                p[at + 3 * stride] = e;
+            }
+            return new FixedPointColumns(out, cv, p, singleRounding ? 0 : 1L << 30, singleRounding ? 0 : 31);
+        }
+
+        /**
+         * Index of column {@code c}'s multiplier: the columns below {@code cv} in blocks of int lanes, each block's
+         * even columns first, then its odd ones (four sections of {@code cv} values: multiplier, half, neg, shift);
+         * the rest after them, four sections of {@code out - cv}.
+         */
+        private static int position(int c, int cv) {
+            if (c >= cv) {
+                return 4 * cv + (c - cv);
+            }
+            int l = INT_LANES;
+            return c - c % l + (c % 2) * (l / 2) + (c % l) / 2;
+        }
+
+        /** Distance between the four sections holding column {@code c}'s constants. */
+        private static int stride(int c, int out, int cv) {
+            return c >= cv ? out - cv : cv;
+        }
+
+        /** Columns. */
+        public int out() {
+            return out;
+        }
+
+        /** Columns served by whole int vectors (a multiple of the int lanes). */
+        int vectorColumns() {
+            return cv;
+        }
+
+        /** The per-column constants, laid out as {@code VectorForward.requantizeRows} reads them. */
+        long[] constants() {
+            return p;
+        }
+
+        /** The first step's added constant: {@code 2^30} (double rounding) or 0. */
+        long c1() {
+            return c1;
+        }
+
+        /** The first step's shift: 31 (double rounding) or 0. */
+        int s1() {
+            return s1;
+        }
+
+        /**
+         * Replaces each accumulator {@code y[s out + c]} ({@code s < n}) by its code, clamped to
+         * {@code [lo, qmax]} after adding the zero point {@code zy}.
+         */
+        public void apply(int[] y, int n, int zy, int lo, int qmax) {
+            apply(y, n, zy, lo, qmax, REQUANTIZE != null);
+        }
+
+        /** {@link #apply(int[], int, int, int, int)} on the Vector API or, with {@code vector} false, a plain loop. */
+        void apply(int[] y, int n, int zy, int lo, int qmax, boolean vector) {
+            Checks.require(!vector || REQUANTIZE != null, "fixed-point columns: the Vector API is not available");
+            checkInput(n, out, y.length, "fixed-point columns");
+            int from = 0;
+            if (vector && cv > 0) {
+                try {
+                    REQUANTIZE.invokeExact(y, n, out, cv, p, c1, s1, zy, lo, qmax);
+                } catch (Throwable e) {
+                    throw unchecked(e);
+                }
+                from = cv;
+            }
+            applyPlain(y, n, from, zy, lo, qmax);
+        }
+
+        /** The plain loop of {@link #apply} for the columns from {@code from} on. */
+        void applyPlain(int[] y, int n, int from, int zy, int lo, int qmax) {
+            int top = qmax - zy;
+            for (int c = from; c < out; c++) {
+                int k = position(c, cv);
+                int stride = stride(c, out, cv);
+                long m0 = p[k];
+                long half = p[k + stride];
+                long neg = p[k + 2 * stride];
+                int e = (int) p[k + 3 * stride];
+                for (int s = 0, q = c; s < n; s++, q += out) {
+                    long x = (y[q] * m0 + c1) >> s1;
+                    int r = (int) ((x + half + ((x >> 63) & neg)) >> e);
+                    y[q] = Math.max(lo, Math.min(r, top) + zy);
+                }
+            }
         }
     }
 

@@ -1,7 +1,10 @@
 package dev.rungbook.internal;
 
+import jdk.incubator.vector.DoubleVector;
 import jdk.incubator.vector.FloatVector;
 import jdk.incubator.vector.IntVector;
+import jdk.incubator.vector.LongVector;
+import jdk.incubator.vector.VectorOperators;
 import jdk.incubator.vector.VectorSpecies;
 
 /**
@@ -30,6 +33,13 @@ final class VectorForward {
      */
     private static final VectorSpecies<Float> F = FloatVector.SPECIES_PREFERRED;
     private static final VectorSpecies<Integer> I = IntVector.SPECIES_PREFERRED;
+    /**
+     * The requantization's 64-bit lanes: the shape of {@link #I}, so that an int vector is reinterpreted as longs
+     * (its even lanes the low halves, its odd lanes the high halves) without a change of shape.
+     */
+    private static final VectorSpecies<Long> Q = LongVector.SPECIES_PREFERRED;
+    /** The input quantization's lanes, as many as {@link #Q}'s. */
+    private static final VectorSpecies<Double> D = DoubleVector.SPECIES_PREFERRED;
     /**
      * The convolution kernel's vectors: 256-bit, the shape of the library's other float-vector code, since this kernel
      * needs separate multiplies and adds (see {@link #F}).
@@ -328,6 +338,130 @@ final class VectorForward {
         }
     }
 
+    /**
+     * The first {@code panels} two-vector panels of an integer layer, requantized: {@code y[s out + c]} becomes the
+     * code of {@code init[c] + sum_t x[s, t] W[c, t]} (int32, wrapping) by the constants {@code p} (see
+     * {@link #requantizeRows}, {@code cv} columns in vector blocks), for every row {@code s < n} and column
+     * {@code c < panels * 2 L}. Each block of rows keeps its accumulators in registers as {@link #intPanel} does,
+     * then moves them through a small scratch tile, which stays in the level-1 cache, to {@link #requantizeTile}:
+     * the int32 sums never go to an array of the layer's size.
+     */
+    static void intLayerCodes(int[] x, int n, int in, int[] pw, int[] pi, int panels, int[] y, int out, long[] p,
+            int cv, long c1, int s1, int zy, int lo, int qmax) {
+        int l = I.length();
+        int[] tile = new int[8 * l];
+        int n4 = n & ~3;
+        for (int k = 0; k < panels; k++) {
+            int j0 = 2 * l * k;
+            codesTwo4(x, n4, in, pw, j0 * in, pi, j0, y, out, tile, p, cv, c1, s1, zy, lo, qmax);
+            codesTwo1(x, n4, n, in, pw, j0 * in, pi, j0, y, out, tile, p, cv, c1, s1, zy, lo, qmax);
+        }
+    }
+
+    /** Rows {@code [0, n4)} ({@code n4} a multiple of 4) of {@link #intLayerCodes}'s panel at {@code j0}. */
+    private static void codesTwo4(int[] x, int n4, int in, int[] pw, int po, int[] pb, int j0, int[] y, int out,
+            int[] tile, long[] p, int cv, long c1, int s1, int zy, int lo, int qmax) {
+        int l = I.length();
+        IntVector b0 = IntVector.fromArray(I, pb, j0);
+        IntVector b1 = IntVector.fromArray(I, pb, j0 + l);
+        for (int i = 0; i < n4; i += 4) {
+            int x0 = i * in;
+            int x1 = x0 + in;
+            int x2 = x1 + in;
+            int x3 = x2 + in;
+            IntVector c00 = b0;
+            IntVector c01 = b1;
+            IntVector c10 = b0;
+            IntVector c11 = b1;
+            IntVector c20 = b0;
+            IntVector c21 = b1;
+            IntVector c30 = b0;
+            IntVector c31 = b1;
+            for (int t = 0, q = po; t < in; t++, q += 2 * l) {
+                IntVector w0 = IntVector.fromArray(I, pw, q);
+                IntVector w1 = IntVector.fromArray(I, pw, q + l);
+                IntVector a = IntVector.broadcast(I, x[x0 + t]);
+                c00 = c00.add(w0.mul(a));
+                c01 = c01.add(w1.mul(a));
+                a = IntVector.broadcast(I, x[x1 + t]);
+                c10 = c10.add(w0.mul(a));
+                c11 = c11.add(w1.mul(a));
+                a = IntVector.broadcast(I, x[x2 + t]);
+                c20 = c20.add(w0.mul(a));
+                c21 = c21.add(w1.mul(a));
+                a = IntVector.broadcast(I, x[x3 + t]);
+                c30 = c30.add(w0.mul(a));
+                c31 = c31.add(w1.mul(a));
+            }
+            c00.intoArray(tile, 0);
+            c01.intoArray(tile, l);
+            c10.intoArray(tile, 2 * l);
+            c11.intoArray(tile, 3 * l);
+            c20.intoArray(tile, 4 * l);
+            c21.intoArray(tile, 5 * l);
+            c30.intoArray(tile, 6 * l);
+            c31.intoArray(tile, 7 * l);
+            requantizeTile(tile, 4, y, i * out + j0, out, j0, p, cv, c1, s1, zy, lo, qmax);
+        }
+    }
+
+    /** Rows {@code [i0, i1)} of {@link #intLayerCodes}'s panel at {@code j0}, one at a time. */
+    private static void codesTwo1(int[] x, int i0, int i1, int in, int[] pw, int po, int[] pb, int j0, int[] y,
+            int out, int[] tile, long[] p, int cv, long c1, int s1, int zy, int lo, int qmax) {
+        int l = I.length();
+        IntVector b0 = IntVector.fromArray(I, pb, j0);
+        IntVector b1 = IntVector.fromArray(I, pb, j0 + l);
+        for (int i = i0; i < i1; i++) {
+            int x0 = i * in;
+            IntVector c0 = b0;
+            IntVector c1v = b1;
+            for (int t = 0, q = po; t < in; t++, q += 2 * l) {
+                IntVector a = IntVector.broadcast(I, x[x0 + t]);
+                c0 = c0.add(IntVector.fromArray(I, pw, q).mul(a));
+                c1v = c1v.add(IntVector.fromArray(I, pw, q + l).mul(a));
+            }
+            c0.intoArray(tile, 0);
+            c1v.intoArray(tile, l);
+            requantizeTile(tile, 1, y, i * out + j0, out, j0, p, cv, c1, s1, zy, lo, qmax);
+        }
+    }
+
+    /**
+     * Requantizes {@code rows} rows of two int vectors each from {@code tile} (row stride {@code 2 L}), columns
+     * {@code j0 .. j0 + 2 L}, into {@code y} from {@code y0} (row stride {@code out}); the arithmetic of
+     * {@link #requantizeRows}.
+     */
+    private static void requantizeTile(int[] tile, int rows, int[] y, int y0, int out, int j0, long[] p, int cv,
+            long c1, int s1, int zy, int lo, int qmax) {
+        int l = I.length();
+        int h = Q.length();
+        IntVector top = IntVector.broadcast(I, qmax - zy);
+        IntVector z = IntVector.broadcast(I, zy);
+        IntVector low = IntVector.broadcast(I, lo);
+        for (int v = 0; v < 2; v++) {
+            int c = j0 + v * l;
+            LongVector mE = LongVector.fromArray(Q, p, c);
+            LongVector mO = LongVector.fromArray(Q, p, c + h);
+            LongVector hE = LongVector.fromArray(Q, p, cv + c);
+            LongVector hO = LongVector.fromArray(Q, p, cv + c + h);
+            LongVector nE = LongVector.fromArray(Q, p, 2 * cv + c);
+            LongVector nO = LongVector.fromArray(Q, p, 2 * cv + c + h);
+            LongVector eE = LongVector.fromArray(Q, p, 3 * cv + c);
+            LongVector eO = LongVector.fromArray(Q, p, 3 * cv + c + h);
+            for (int r = 0; r < rows; r++) {
+                LongVector a = IntVector.fromArray(I, tile, (2 * r + v) * l).reinterpretAsLongs();
+                LongVector xe = a.lanewise(VectorOperators.LSHL, 32).lanewise(VectorOperators.ASHR, 32).mul(mE)
+                        .add(c1).lanewise(VectorOperators.ASHR, s1);
+                LongVector xo = a.lanewise(VectorOperators.ASHR, 32).mul(mO).add(c1)
+                        .lanewise(VectorOperators.ASHR, s1);
+                xe = xe.add(hE).add(xe.lanewise(VectorOperators.ASHR, 63).and(nE)).lanewise(VectorOperators.ASHR, eE);
+                xo = xo.add(hO).add(xo.lanewise(VectorOperators.ASHR, 63).and(nO)).lanewise(VectorOperators.ASHR, eO);
+                IntVector q = xe.and(0xFFFF_FFFFL).or(xo.lanewise(VectorOperators.LSHL, 32)).reinterpretAsInts();
+                q.min(top).add(z).max(low).intoArray(y, y0 + r * out + v * l);
+            }
+        }
+    }
+
     /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 4) of a two-vector int panel. */
     private static void intTwo4(int[] x, int i0, int i1, int in, int[] pw, int po, int[] pb, int j0, int[] y, int out,
             int cols) {
@@ -459,6 +593,72 @@ final class VectorForward {
             }
             c0.intoArray(tmp, 0);
             System.arraycopy(tmp, 0, y, i * out + j0, cols);
+        }
+    }
+
+    /**
+     * Requantizes {@code y[s out + c]} in place for the rows {@code s < n} and the columns {@code c < cv}
+     * ({@code cv} a multiple of the int lanes) as {@link ForwardKernels.FixedPointColumns} defines it:
+     * {@code P = acc * m0} in 64 bits, {@code x = (P + c1) >> s1}, {@code r = (x + half + ((x >> 63) & neg)) >> e},
+     * then {@code max(lo, min(r, qmax - zy) + zy)}. {@code p} holds the per-column {@code m0}, {@code half},
+     * {@code neg} and {@code e} in four sections of {@code cv} longs; within a section each block of int lanes lists
+     * its even columns, then its odd ones, which is how an int vector reinterpreted as longs holds them (low half:
+     * even lane). Every step is exact in 64 bits, and {@code r} fits an int, so the recombined low halves are the
+     * results.
+     */
+    static void requantizeRows(int[] y, int n, int out, int cv, long[] p, long c1, int s1, int zy, int lo, int qmax) {
+        int l = I.length();
+        int h = Q.length();
+        IntVector top = IntVector.broadcast(I, qmax - zy);
+        IntVector z = IntVector.broadcast(I, zy);
+        IntVector low = IntVector.broadcast(I, lo);
+        for (int c = 0; c < cv; c += l) {
+            LongVector mE = LongVector.fromArray(Q, p, c);
+            LongVector mO = LongVector.fromArray(Q, p, c + h);
+            LongVector hE = LongVector.fromArray(Q, p, cv + c);
+            LongVector hO = LongVector.fromArray(Q, p, cv + c + h);
+            LongVector nE = LongVector.fromArray(Q, p, 2 * cv + c);
+            LongVector nO = LongVector.fromArray(Q, p, 2 * cv + c + h);
+            LongVector eE = LongVector.fromArray(Q, p, 3 * cv + c);
+            LongVector eO = LongVector.fromArray(Q, p, 3 * cv + c + h);
+            for (int s = 0, q = c; s < n; s++, q += out) {
+                LongVector v = IntVector.fromArray(I, y, q).reinterpretAsLongs();
+                LongVector xe = v.lanewise(VectorOperators.LSHL, 32).lanewise(VectorOperators.ASHR, 32).mul(mE)
+                        .add(c1).lanewise(VectorOperators.ASHR, s1);
+                LongVector xo = v.lanewise(VectorOperators.ASHR, 32).mul(mO).add(c1)
+                        .lanewise(VectorOperators.ASHR, s1);
+                xe = xe.add(hE).add(xe.lanewise(VectorOperators.ASHR, 63).and(nE)).lanewise(VectorOperators.ASHR, eE);
+                xo = xo.add(hO).add(xo.lanewise(VectorOperators.ASHR, 63).and(nO)).lanewise(VectorOperators.ASHR, eO);
+                IntVector r = xe.and(0xFFFF_FFFFL).or(xo.lanewise(VectorOperators.LSHL, 32)).reinterpretAsInts();
+                r.min(top).add(z).max(low).intoArray(y, q);
+            }
+        }
+    }
+
+    /**
+     * {@code q[qo + i] = clamp(rint(u[i]) + zp, 0, qmax)} for {@code i < m} ({@code m} a multiple of the int lanes), NaN
+     * giving 0, where the quotients {@code u} are laid out in {@code d} as {@link ForwardKernels#quantizeCodes}
+     * writes them: per block of int lanes, the even elements' quotients, then the odd ones'. {@code rint} is
+     * {@code (u + 1.5 * 2^52) - 1.5 * 2^52} (exact to the nearest integer, ties to even, for {@code |u| <= 2^51};
+     * larger magnitudes keep their sign and clamp to the same end); the clamp is two comparisons (false for NaN);
+     * each code is the low half of the bits of {@code code + 2^52}.
+     */
+    static void quantizeBlocks(double[] d, int m, double zp, double qmax, int[] q, int qo) {
+        int l = I.length();
+        int h = D.length();
+        DoubleVector magic = DoubleVector.broadcast(D, 0x1.8p52);
+        DoubleVector z = DoubleVector.broadcast(D, zp);
+        DoubleVector top = DoubleVector.broadcast(D, qmax);
+        DoubleVector zero = DoubleVector.zero(D);
+        DoubleVector two52 = DoubleVector.broadcast(D, 0x1p52);
+        for (int b = 0; b < m; b += l) {
+            DoubleVector ce = DoubleVector.fromArray(D, d, b).add(magic).sub(magic).add(z);
+            DoubleVector co = DoubleVector.fromArray(D, d, b + h).add(magic).sub(magic).add(z);
+            ce = zero.blend(ce, ce.compare(VectorOperators.GT, zero)).blend(top, ce.compare(VectorOperators.GE, top));
+            co = zero.blend(co, co.compare(VectorOperators.GT, zero)).blend(top, co.compare(VectorOperators.GE, top));
+            LongVector e = ce.add(two52).reinterpretAsLongs().and(0xFFFF_FFFFL);
+            LongVector o = co.add(two52).reinterpretAsLongs().lanewise(VectorOperators.LSHL, 32);
+            e.or(o).reinterpretAsInts().intoArray(q, qo + b);
         }
     }
 

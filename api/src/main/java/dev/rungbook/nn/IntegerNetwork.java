@@ -53,12 +53,15 @@ public final class IntegerNetwork {
     }
 
     /**
-     * One linear layer in integer form; {@code wide} holds the weight codes as ints, [out, in], and {@code panels}
-     * the same packed for the forward kernel (null without the Vector API, where the plain loop runs).
+     * One linear layer in integer form; {@code wide} holds the weight codes as ints, [out, in], {@code panels} the
+     * same packed for the forward kernel (null without the Vector API, where the plain loop runs), and
+     * {@code doubleRounding} / {@code singleRounding} the per-column requantization constants of the two modes
+     * (null when a shift is outside [0, 31], where {@link FixedPoint} runs per output).
      */
     private record IntLayer(String name, int in, int out, byte[] weights, int[] bias, float[] weightScales,
             FixedPoint[] multipliers, double outputScale, int outputZeroPoint, boolean relu, int weightBits,
-            int[] wide, int[] weightSums, ForwardKernels.IntPanels panels) {
+            int[] wide, int[] weightSums, ForwardKernels.IntPanels panels, ForwardKernels.FixedPointColumns doubleRounding,
+            ForwardKernels.FixedPointColumns singleRounding) {
         IntLayer(String name, int in, int out, byte[] weights, int[] bias, float[] weightScales,
                 FixedPoint[] multipliers, double outputScale, int outputZeroPoint, boolean relu, int weightBits) {
             this(name, in, out, weights, bias, weightScales, multipliers, outputScale, outputZeroPoint, relu,
@@ -70,8 +73,23 @@ public final class IntegerNetwork {
                 int[] wide, int[] weightSums) {
             this(name, in, out, weights, bias, weightScales, multipliers, outputScale, outputZeroPoint, relu,
                     weightBits, wide, weightSums,
-                    ForwardKernels.vectorised() ? ForwardKernels.IntPanels.of(wide, out, in) : null);
+                    ForwardKernels.vectorised() ? ForwardKernels.IntPanels.of(wide, out, in) : null,
+                    columns(multipliers, false), columns(multipliers, true));
         }
+    }
+
+    /** The requantization constants of {@code m}, or null if a shift is outside [0, 31]. */
+    private static ForwardKernels.FixedPointColumns columns(FixedPoint[] m, boolean single) {
+        int[] m0 = new int[m.length];
+        int[] sh = new int[m.length];
+        for (int c = 0; c < m.length; c++) {
+            m0[c] = m[c].multiplier();
+            sh[c] = m[c].shift();
+            if (sh[c] < 0 || sh[c] > 31) {
+                return null;
+            }
+        }
+        return ForwardKernels.FixedPointColumns.of(m0, sh, single);
     }
 
     private static int[] widen(byte[] w) {
@@ -339,19 +357,12 @@ public final class IntegerNetwork {
         return inputZeroPoint;
     }
 
-    /** Quantizes float inputs [N, in] to the input grid. */
+    /**
+     * Quantizes float inputs [N, in] to the input grid: {@code clamp(rint(v / S_x) + z_x, 0, 2^bits - 1)} in double,
+     * NaN giving 0.
+     */
     public int[] quantizeInput(Tensor x) {
-        float[] v = TensorAccess.data(x);
-        int qmax = (1 << bits) - 1;
-        int[] q = new int[v.length];
-        double s = inputScale;
-        int zp = inputZeroPoint;
-        for (int i = 0; i < v.length; i++) {
-            // clamp(rint(v / s) + zp, 0, qmax) by comparisons: NaN fails both and gives 0, as (int) NaN does
-            double c = Math.rint(v[i] / s) + zp;
-            q[i] = c >= qmax ? qmax : c > 0 ? (int) c : 0;
-        }
-        return q;
+        return ForwardKernels.quantizeCodes(TensorAccess.data(x), inputScale, inputZeroPoint, (1 << bits) - 1);
     }
 
     /**
@@ -389,7 +400,10 @@ public final class IntegerNetwork {
      * multiplier rounded half up. The input zero point is folded into the bias:
      * {@code sum_j w_j (a_j - zx) = sum_j w_j a_j - zx sum_j w_j}, the same int32 value. The products run in
      * {@link ForwardKernels.IntPanels} (packed weights, blocks of samples and output columns held in registers) when
-     * the Vector API is there, else in {@link #layerCodesPlain}; the codes are the same.
+     * the Vector API is there, else in {@link #layerCodesPlain}; the codes are the same. With fixed-point
+     * requantization and every shift in [0, 31] (the usual case: multipliers below 1, not below 2^-32) each block is
+     * requantized as it leaves the registers ({@link ForwardKernels.IntPanels#codes}, in 64-bit vector lanes);
+     * otherwise the accumulators are requantized one by one by {@link FixedPoint}.
      */
     int[] layerCodes(int i, int[] a, int zx, int n, boolean fixedPoint) {
         IntLayer l = layers.get(i);
@@ -403,53 +417,19 @@ public final class IntegerNetwork {
         for (int c = 0; c < out; c++) {
             folded[c] = l.bias[c] - zx * l.weightSums[c];
         }
-        int[] y = l.panels.accumulate(a, n, folded);
         boolean single = requantization == Requantization.SINGLE_ROUNDING;
-        int zy = l.outputZeroPoint;
-        int[] m0 = new int[out];
-        int[] sh = new int[out];
-        boolean plainShifts = fixedPoint && !single;
-        for (int c = 0; c < out; c++) {
-            m0[c] = l.multipliers[c].multiplier();
-            sh[c] = l.multipliers[c].shift();
-            plainShifts &= sh[c] >= 0 && sh[c] <= 31;
+        ForwardKernels.FixedPointColumns columns = single ? l.singleRounding : l.doubleRounding;
+        if (fixedPoint && columns != null) {
+            return l.panels.codes(a, n, folded, columns, l.outputZeroPoint, lo, qmax);
         }
+        int[] y = l.panels.accumulate(a, n, folded);
         for (int s = 0; s < n; s++) {
             int row = s * out;
-            if (plainShifts) {
-                requantizeRow(y, row, out, m0, sh, zy, lo, qmax);
-                continue;
-            }
             for (int c = 0; c < out; c++) {
-                y[row + c] = requantize(y[row + c], l.multipliers[c], fixedPoint, single, zy, lo, qmax);
+                y[row + c] = requantize(y[row + c], l.multipliers[c], fixedPoint, single, l.outputZeroPoint, lo, qmax);
             }
         }
         return y;
-    }
-
-    /**
-     * {@code y[row + c] = clamp(zy + FixedPoint.apply(y[row + c]), lo, qmax)} for {@code c < out}, every shift in
-     * [0, 31]: the published double rounding ({@link FixedPoint#saturatingRoundingDoublingHighMul} then
-     * {@link FixedPoint#roundingDivideByPowerOfTwo}) written without branches, so that the loop runs at a few
-     * cycles per output. Same integers: the doubling high multiply cannot saturate ({@code M0 >= 2^30}), its nudge is
-     * {@code 2^30} or {@code 1 - 2^30} by the sign of the product, the division by {@code 2^31} truncates toward
-     * zero (add {@code 2^31 - 1} to negative values before the arithmetic shift), at shift 0 the rounding shift's
-     * mask and remainder are 0, which leaves the value as it is, {@code remainder > threshold} is the sign bit of
-     * {@code threshold - remainder} (both in [0, 2^31)), and clamping {@code r} to {@code qmax - zy} before adding
-     * {@code zy} cannot overflow. Tested against {@link FixedPoint#apply}.
-     */
-    static void requantizeRow(int[] y, int row, int out, int[] m0, int[] shift, int zy, int lo, int qmax) {
-        int top = qmax - zy;
-        for (int c = 0; c < out; c++) {
-            long ab = (long) y[row + c] * m0[c];
-            long t = ab + ((1L << 30) - ((ab >> 63) & ((1L << 31) - 1)));
-            int x = (int) ((t + ((t >> 63) & ((1L << 31) - 1))) >> 31);
-            int e = shift[c];
-            int mask = (1 << e) - 1;
-            int threshold = (mask >> 1) + (x >>> 31);
-            int r = (x >> e) + ((threshold - (x & mask)) >>> 31);
-            y[row + c] = Math.max(lo, Math.min(r, top) + zy);
-        }
     }
 
     /**

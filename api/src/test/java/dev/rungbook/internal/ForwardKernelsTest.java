@@ -5,6 +5,7 @@ import static org.junit.jupiter.api.Assertions.assertEquals;
 import static org.junit.jupiter.api.Assertions.assertThrows;
 import static org.junit.jupiter.api.Assertions.assertTrue;
 
+import dev.rungbook.nn.FixedPoint;
 import java.util.SplittableRandom;
 import org.junit.jupiter.api.Test;
 
@@ -172,5 +173,149 @@ class ForwardKernelsTest {
         ForwardKernels.IntPanels p = ForwardKernels.IntPanels.of(new int[6], 2, 3);
         e = assertThrows(IllegalArgumentException.class, () -> p.accumulate(new int[5], 2, new int[2]));
         assertTrue(e.getMessage().contains("input [2, 3] needs 6 values, got 5"), e.getMessage());
+    }
+
+    @Test
+    void fixedPointColumnsAreFixedPointApplyExactly() {
+        // Source: FixedPoint.apply (the published saturating rounding doubling high multiply, then the rounding right
+        // shift, ties away from zero) and FixedPoint.applySingleRounding, both checked against worked examples and
+        // BigDecimal in FixedPointTest; then the offset and the clamp. Vector and plain paths, a tail of columns
+        // past the last whole vector, the extreme accumulators, and exact ties of both roundings (M0 = 2^30 halves
+        // the accumulator: odd accumulators tie in the high multiply, +-(2j+1) 2^n in the shift) of both signs.
+        SplittableRandom r = new SplittableRandom(41);
+        int out = 71;
+        int n = 3;
+        int[] edges = {0, 1, -1, 2, -2, 3, -3, Integer.MAX_VALUE, Integer.MIN_VALUE, Integer.MAX_VALUE - 1,
+            Integer.MIN_VALUE + 1, 1 << 30, -(1 << 30), (1 << 30) + 1, -(1 << 30) - 1, 12345, -12345};
+        for (int round = 0; round < 3000; round++) {
+            FixedPoint[] m = new FixedPoint[out];
+            int[] m0 = new int[out];
+            int[] sh = new int[out];
+            for (int c = 0; c < out; c++) {
+                int k = r.nextInt(0, 32);
+                // multipliers from 2^-32 up to just below 1, exact powers of two, and 0.5 - ulp (M0 rounds up to 1: n = 0)
+                double real = c == 0 ? Math.nextDown(0.5) : r.nextInt(4) == 0 ? Math.scalb(0.5, -k)
+                        : Math.scalb(r.nextDouble(0.5, 1.0), -k);
+                m[c] = FixedPoint.of(real);
+                m0[c] = m[c].multiplier();
+                sh[c] = m[c].shift();
+            }
+            int[] acc = new int[n * out];
+            for (int i = 0; i < acc.length; i++) {
+                int c = i % out;
+                int kind = r.nextInt(6);
+                acc[i] = kind == 0 ? edges[r.nextInt(edges.length)]
+                        : kind == 1 ? r.nextInt()
+                        : kind == 2 ? (int) Math.max(Integer.MIN_VALUE, Math.min(Integer.MAX_VALUE,
+                                (2L * r.nextInt(-2000, 2000) + 1) << Math.min(30, sh[c])))
+                        : kind == 3 ? 2 * r.nextInt(-1 << 20, 1 << 20) + 1
+                        : r.nextInt(-1 << 20, 1 << 20);
+            }
+            int zy = r.nextInt(0, 256);
+            int lo = r.nextBoolean() ? zy : 0;
+            int qmax = r.nextBoolean() ? 255 : 31;
+            zy = Math.min(zy, qmax);
+            lo = Math.min(lo, qmax);
+            for (boolean single : new boolean[] {false, true}) {
+                ForwardKernels.FixedPointColumns cols = ForwardKernels.FixedPointColumns.of(m0, sh, single);
+                for (boolean vector : new boolean[] {true, false}) {
+                    int[] y = acc.clone();
+                    cols.apply(y, n, zy, lo, qmax, vector);
+                    for (int i = 0; i < y.length; i++) {
+                        FixedPoint f = m[i % out];
+                        long v = single ? f.applySingleRounding(acc[i]) : f.apply(acc[i]);
+                        long want = Math.max(lo, Math.min(qmax, zy + v));
+                        assertEquals(want, y[i], "acc " + acc[i] + ", " + f + (single ? ", single" : ", double")
+                                + (vector ? ", vector" : ", plain"));
+                    }
+                }
+            }
+        }
+    }
+
+    @Test
+    void fixedPointColumnsRefuseShiftsTheyDoNotServe() {
+        assertThrows(IllegalArgumentException.class,
+                () -> ForwardKernels.FixedPointColumns.of(new int[] {1 << 30}, new int[] {32}, false));
+        assertThrows(IllegalArgumentException.class,
+                () -> ForwardKernels.FixedPointColumns.of(new int[] {1 << 30}, new int[] {-1}, false));
+        assertThrows(IllegalArgumentException.class,
+                () -> ForwardKernels.FixedPointColumns.of(new int[] {(1 << 30) - 1}, new int[] {3}, true));
+    }
+
+    @Test
+    void quantizeCodesAreTheClampedRoundedQuotient() {
+        // Source: the definition clamp(rint(v / s) + zp, 0, qmax) with Math.rint (ties to even) and Math.min/max in
+        // double, NaN giving 0 as (int) NaN does. Exact ties: s = 0.25 makes v = k/8 a quotient k/2; values far
+        // outside the grid (beyond 2^51 after the division, where the vector rounding's magic constant stops being
+        // exact) and the special values; lengths with and without a tail past the last whole vector.
+        SplittableRandom r = new SplittableRandom(47);
+        double[] scales = {0.25, 0.0213, 1e-30, 3.7e5};
+        for (int len : new int[] {1, 15, 16, 17, 513, 9000}) {
+            for (double s : scales) {
+                float[] v = new float[len];
+                for (int i = 0; i < len; i++) {
+                    int kind = r.nextInt(8);
+                    v[i] = kind == 0 ? (float) (r.nextInt(-2100, 2100) / 8.0)
+                            : kind == 1 ? new float[] {Float.NaN, -0.0f, 0.0f, Float.POSITIVE_INFINITY,
+                                Float.NEGATIVE_INFINITY, Float.MAX_VALUE, -Float.MAX_VALUE, Float.MIN_VALUE,
+                                0x1p51f, -0x1p51f, 0x1p52f, 0x1.8p52f}[r.nextInt(12)]
+                            : (float) (r.nextGaussian() * s * 100);
+                }
+                for (int[] grid : new int[][] {{0, 255}, {128, 255}, {3, 15}}) {
+                    int zp = grid[0];
+                    int qmax = grid[1];
+                    int[] vector = ForwardKernels.quantizeCodes(v, s, zp, qmax, true);
+                    int[] plain = ForwardKernels.quantizeCodes(v, s, zp, qmax, false);
+                    for (int i = 0; i < len; i++) {
+                        double c = Math.rint(v[i] / s) + zp;
+                        int want = Double.isNaN(c) ? 0 : (int) Math.max(0, Math.min(qmax, c));
+                        assertEquals(want, vector[i], "vector, value " + v[i] + ", scale " + s + ", zp " + zp);
+                        assertEquals(want, plain[i], "plain, value " + v[i] + ", scale " + s + ", zp " + zp);
+                    }
+                }
+            }
+        }
+    }
+
+    @Test
+    void intPanelCodesAreTheRequantizedReferenceSums() {
+        // Source: referenceAccumulate (the one-output-at-a-time int32 loop, itself checked against long sums above)
+        // followed by FixedPoint.apply / applySingleRounding per output, the offset and the clamp. Output widths
+        // with and without whole two-vector panels, one-vector panels and a tail; row counts with a remainder.
+        SplittableRandom r = new SplittableRandom(53);
+        for (int n : new int[] {1, 3, 17, 66}) {
+            for (int in : new int[] {1, 3, 72}) {
+                for (int out : new int[] {1, 5, 17, 33, 48, 64, 70, 129}) {
+                    int[] x = ints(r, n * in, 0, 255);
+                    int[] w = ints(r, out * in, -128, 127);
+                    int[] init = ints(r, out, -3_000_000, 3_000_000);
+                    FixedPoint[] m = new FixedPoint[out];
+                    int[] m0 = new int[out];
+                    int[] sh = new int[out];
+                    for (int c = 0; c < out; c++) {
+                        m[c] = FixedPoint.of(Math.scalb(r.nextDouble(0.5, 1.0), -r.nextInt(8, 20)));
+                        m0[c] = m[c].multiplier();
+                        sh[c] = m[c].shift();
+                    }
+                    int[] acc = ForwardKernels.referenceAccumulate(x, n, w, init, in, out);
+                    ForwardKernels.IntPanels p = ForwardKernels.IntPanels.of(w, out, in);
+                    int zy = r.nextInt(0, 256);
+                    int lo = r.nextBoolean() ? zy : 0;
+                    for (boolean single : new boolean[] {false, true}) {
+                        ForwardKernels.FixedPointColumns cols = ForwardKernels.FixedPointColumns.of(m0, sh, single);
+                        int[] want = new int[n * out];
+                        for (int i = 0; i < want.length; i++) {
+                            FixedPoint f = m[i % out];
+                            long v = single ? f.applySingleRounding(acc[i]) : f.apply(acc[i]);
+                            want[i] = (int) Math.max(lo, Math.min(255, zy + v));
+                        }
+                        String shape = n + " x " + in + " -> " + out + (single ? ", single" : ", double");
+                        assertArrayEquals(want, p.codes(x, n, init, cols, zy, lo, 255, true), "vector, " + shape);
+                        assertArrayEquals(want, p.codes(x, n, init, cols, zy, lo, 255, false), "plain, " + shape);
+                    }
+                }
+            }
+        }
     }
 }
