@@ -1,5 +1,9 @@
 package dev.rungbook.internal;
 
+import java.lang.invoke.MethodHandle;
+import java.lang.invoke.MethodHandles;
+import java.lang.invoke.MethodType;
+
 /**
  * Fused per-segment kernels for contiguous segments (a whole tensor, a row of a row-major matrix, a group of
  * consecutive elements along the last axis): round, clamp, store the codes and dequantize in a few tight loops over
@@ -31,7 +35,247 @@ package dev.rungbook.internal;
 public final class SegmentKernels {
     private static final float MAGIC = 12582912f; // 1.5 * 2^23
 
+    private static final MethodHandle V_MIN_MAX;
+    private static final MethodHandle V_MAX_ABS;
+    private static final MethodHandle V_LINEAR;
+    private static final MethodHandle V_LEVELS;
+
+    static {
+        MethodHandle mm = null;
+        MethodHandle ma = null;
+        MethodHandle li = null;
+        MethodHandle lv = null;
+        Class<?> c = Lanes.vectorClass("dev.rungbook.internal.VectorSegments");
+        if (c != null) {
+            try {
+                MethodHandles.Lookup l = MethodHandles.lookup();
+                mm = l.findStatic(c, "minMax", MethodType.methodType(void.class, float[].class, int.class, int.class,
+                        int.class, float[].class, float[].class));
+                ma = l.findStatic(c, "maxAbs", MethodType.methodType(void.class, float[].class, int.class, int.class,
+                        int.class, float[].class));
+                li = l.findStatic(c, "linear", MethodType.methodType(int.class, float[].class, int.class, int.class,
+                        int.class, float[].class, float[].class, int.class, int.class, int.class, float[].class,
+                        byte[].class, short[].class));
+                lv = l.findStatic(c, "levels", MethodType.methodType(int.class, float[].class, int.class, int.class,
+                        int.class, float[].class, int.class, Levels.class, float[].class, byte[].class));
+                int lanes = (int) l.findStatic(c, "lanes", MethodType.methodType(int.class)).invokeExact();
+                Checks.require(lanes == 8, "8 lanes");
+            } catch (Throwable e) { // no usable Vector API: the plain loops
+                mm = null;
+                ma = null;
+                li = null;
+                lv = null;
+            }
+        }
+        V_MIN_MAX = mm;
+        V_MAX_ABS = ma;
+        V_LINEAR = li;
+        V_LEVELS = lv;
+    }
+
     private SegmentKernels() {
+    }
+
+    /** True when the run-of-segments kernels run on the Vector API ({@link VectorSegments}). */
+    public static boolean vectorised() {
+        return V_LINEAR != null;
+    }
+
+    /** Rethrows what a vector method threw: unchecked throwables as they are (it declares no checked ones). */
+    private static RuntimeException unchecked(Throwable e) {
+        if (e instanceof RuntimeException) {
+            return (RuntimeException) e;
+        }
+        if (e instanceof Error) {
+            throw (Error) e;
+        }
+        return new IllegalStateException(e);
+    }
+
+    // ------------------------------------------------------------------ runs of segments
+
+    /*
+     * The methods below work on a run of count contiguous segments of m values each, from off (segment k at
+     * off + k * m): one call per run rather than per segment, so that the Vector API forms (VectorSegments) are
+     * reached once per run.
+     */
+
+    /**
+     * {@code lo[k], hi[k]} = the minimum and maximum ({@link Math#min}/{@link Math#max}: {@code -0.0} below
+     * {@code 0.0}) of segment {@code k}, for {@code k < count}; for values that are not all finite, at least one of
+     * the two is not finite.
+     */
+    public static void minMax(float[] w, int off, int count, int m, float[] lo, float[] hi) {
+        if (V_MIN_MAX != null) {
+            try {
+                V_MIN_MAX.invokeExact(w, off, count, m, lo, hi);
+                return;
+            } catch (Throwable e) {
+                throw unchecked(e);
+            }
+        }
+        scalarMinMax(w, off, count, m, lo, hi);
+    }
+
+    /**
+     * {@link #minMax} as plain loops: the floats ordered as integers ({@code b ^ ((b >> 31) & 0x7FFFFFFF)} of their
+     * bits orders every float as {@link Math#min} does, {@code -0.0} below {@code 0.0}), in four independent
+     * accumulators, which the processor overlaps (a float {@code Math.min} chain waits for each step); a NaN or an
+     * infinity gives a non-finite end.
+     */
+    static void scalarMinMax(float[] w, int off, int count, int m, float[] lo, float[] hi) {
+        for (int k = 0; k < count; k++) {
+            int base = off + k * m;
+            int end = base + m;
+            int a0 = Integer.MAX_VALUE;
+            int a1 = Integer.MAX_VALUE;
+            int a2 = Integer.MAX_VALUE;
+            int a3 = Integer.MAX_VALUE;
+            int b0 = Integer.MIN_VALUE;
+            int b1 = Integer.MIN_VALUE;
+            int b2 = Integer.MIN_VALUE;
+            int b3 = Integer.MIN_VALUE;
+            int i = base;
+            for (; i + 4 <= end; i += 4) {
+                int x0 = ordered(w[i]);
+                int x1 = ordered(w[i + 1]);
+                int x2 = ordered(w[i + 2]);
+                int x3 = ordered(w[i + 3]);
+                a0 = Math.min(a0, x0);
+                a1 = Math.min(a1, x1);
+                a2 = Math.min(a2, x2);
+                a3 = Math.min(a3, x3);
+                b0 = Math.max(b0, x0);
+                b1 = Math.max(b1, x1);
+                b2 = Math.max(b2, x2);
+                b3 = Math.max(b3, x3);
+            }
+            for (; i < end; i++) {
+                int x = ordered(w[i]);
+                a0 = Math.min(a0, x);
+                b0 = Math.max(b0, x);
+            }
+            int a = Math.min(Math.min(a0, a1), Math.min(a2, a3));
+            int b = Math.max(Math.max(b0, b1), Math.max(b2, b3));
+            // an empty segment: the starting values of a plain loop
+            lo[k] = m == 0 ? Float.POSITIVE_INFINITY : Float.intBitsToFloat(ordered(a));
+            hi[k] = m == 0 ? Float.NEGATIVE_INFINITY : Float.intBitsToFloat(ordered(b));
+        }
+    }
+
+    /** The float's bits as an int that orders floats (an involution on the bit patterns). */
+    private static int ordered(float x) {
+        int b = Float.floatToRawIntBits(x);
+        return b ^ ((b >> 31) & 0x7FFFFFFF);
+    }
+
+    private static int ordered(int b) {
+        return b ^ ((b >> 31) & 0x7FFFFFFF);
+    }
+
+    /**
+     * {@code amax[k]} = the largest {@code |x|} of segment {@code k} (at least 0), for {@code k < count}; NaN or
+     * infinite if a value is.
+     */
+    public static void maxAbs(float[] w, int off, int count, int m, float[] amax) {
+        if (V_MAX_ABS != null) {
+            try {
+                V_MAX_ABS.invokeExact(w, off, count, m, amax);
+                return;
+            } catch (Throwable e) {
+                throw unchecked(e);
+            }
+        }
+        scalarMaxAbs(w, off, count, m, amax);
+    }
+
+    /**
+     * {@link #maxAbs} as plain loops: magnitudes order as their bit patterns (NaN above infinity), in four
+     * independent integer accumulators.
+     */
+    static void scalarMaxAbs(float[] w, int off, int count, int m, float[] amax) {
+        for (int k = 0; k < count; k++) {
+            int base = off + k * m;
+            int end = base + m;
+            int b0 = 0;
+            int b1 = 0;
+            int b2 = 0;
+            int b3 = 0;
+            int i = base;
+            for (; i + 4 <= end; i += 4) {
+                b0 = Math.max(b0, Float.floatToRawIntBits(w[i]) & 0x7FFFFFFF);
+                b1 = Math.max(b1, Float.floatToRawIntBits(w[i + 1]) & 0x7FFFFFFF);
+                b2 = Math.max(b2, Float.floatToRawIntBits(w[i + 2]) & 0x7FFFFFFF);
+                b3 = Math.max(b3, Float.floatToRawIntBits(w[i + 3]) & 0x7FFFFFFF);
+            }
+            for (; i < end; i++) {
+                b0 = Math.max(b0, Float.floatToRawIntBits(w[i]) & 0x7FFFFFFF);
+            }
+            amax[k] = Float.intBitsToFloat(Math.max(Math.max(b0, b1), Math.max(b2, b3)));
+        }
+    }
+
+    /**
+     * {@link #linear} for each of {@code count} segments, segment {@code k} with scale {@code scales[s0 + k]} and
+     * zero point {@code zeros[s0 + k]} (0 if {@code zeros} is null); every scale positive and finite.
+     *
+     * @return the number of elements redone in double
+     */
+    public static int linear(float[] w, int off, int count, int m, float[] scales, float[] zeros, int s0, int qmin,
+            int qmax, float[] deq, byte[] bytes, short[] shorts) {
+        if (V_LINEAR != null) {
+            try {
+                return (int) V_LINEAR.invokeExact(w, off, count, m, scales, zeros, s0, qmin, qmax, deq, bytes,
+                        shorts);
+            } catch (Throwable e) {
+                throw unchecked(e);
+            }
+        }
+        return scalarLinear(w, off, count, m, scales, zeros, s0, qmin, qmax, deq, bytes, shorts);
+    }
+
+    /** {@link #linear(float[], int, int, int, float[], float[], int, int, int, float[], byte[], short[])}, plain. */
+    static int scalarLinear(float[] w, int off, int count, int m, float[] scales, float[] zeros, int s0, int qmin,
+            int qmax, float[] deq, byte[] bytes, short[] shorts) {
+        int redo = 0;
+        for (int k = 0; k < count; k++) {
+            redo += linear(w, off + k * m, m, scales[s0 + k], zeros == null ? 0f : zeros[s0 + k], qmin, qmax, deq,
+                    bytes, shorts);
+        }
+        return redo;
+    }
+
+    /**
+     * {@link #levels(float[], int, int, float, Levels, float[], byte[], float[])} for each of {@code count}
+     * segments, segment {@code k} with scale {@code scales[s0 + k]} (positive, finite, at least every
+     * {@code |x|} of its segment); {@code y} is scratch of at least {@code min(m, 4096)} floats.
+     *
+     * @return the number of elements counted in double
+     */
+    public static int levels(float[] w, int off, int count, int m, float[] scales, int s0, Levels table, float[] deq,
+            byte[] bytes, float[] y) {
+        if (V_LEVELS != null) {
+            try {
+                return (int) V_LEVELS.invokeExact(w, off, count, m, scales, s0, table, deq, bytes);
+            } catch (Throwable e) {
+                throw unchecked(e);
+            }
+        }
+        return scalarLevels(w, off, count, m, scales, s0, table, deq, bytes, y);
+    }
+
+    /** {@link #levels(float[], int, int, int, float[], int, Levels, float[], byte[], float[])}, plain. */
+    static int scalarLevels(float[] w, int off, int count, int m, float[] scales, int s0, Levels table, float[] deq,
+            byte[] bytes, float[] y) {
+        int redo = 0;
+        int chunk = Math.min(m, 4096);
+        for (int k = 0; k < count; k++) {
+            int base = off + k * m;
+            for (int c = 0; c < m; c += chunk) {
+                redo += levels(w, base + c, Math.min(chunk, m - c), scales[s0 + k], table, deq, bytes, y);
+            }
+        }
+        return redo;
     }
 
     // ------------------------------------------------------------------ linear grids
@@ -117,6 +361,13 @@ public final class SegmentKernels {
         final double[] mids;
         /** Code per bucket, -1 where the double count decides. */
         final byte[] codes;
+        /**
+         * For {@link VectorSegments}: per bucket {@code b = rint((y + 1) * VECTOR_BUCKETS)} of the float quotient
+         * {@code y} (rounded to nearest even, so monotone in {@code y}), the code every quotient of the bucket has, or
+         * -1 where a midpoint's float neighbour lies in the bucket; and the level of that code (0 for -1).
+         */
+        final int[] vectorCodes;
+        final float[] vectorLevels;
 
         private Levels(float[] levels) {
             this.levels = levels.clone();
@@ -138,6 +389,31 @@ public final class SegmentKernels {
                     codes[b] = -1;
                 }
             }
+            vectorCodes = new int[2 * VECTOR_BUCKETS + 1];
+            vectorLevels = new float[vectorCodes.length];
+            for (int b = 0; b < vectorCodes.length; b++) {
+                float rep = (float) b / VECTOR_BUCKETS - 1f;
+                vectorCodes[b] = vectorBucket(rep) == b ? count(mids, rep) : -1;
+            }
+            for (double mid : mids) {
+                float f = (float) mid;
+                float lo = f <= mid ? f : Math.nextDown(f);
+                float hi = f >= mid ? f : Math.nextUp(f);
+                for (int b = vectorBucket(lo); b <= vectorBucket(hi); b++) {
+                    vectorCodes[b] = -1;
+                }
+            }
+            for (int b = 0; b < vectorCodes.length; b++) {
+                vectorLevels[b] = vectorCodes[b] < 0 ? 0f : levels[vectorCodes[b]];
+            }
+        }
+
+        /** Buckets per unit of the quotient in the vector tables ({@code 2 * VECTOR_BUCKETS + 1} cover [-1, 1]). */
+        static final int VECTOR_BUCKETS = 2048;
+
+        /** The vector kernel's bucket of {@code y}: {@code rint((y + 1) * VECTOR_BUCKETS)}, computed as it does. */
+        static int vectorBucket(float y) {
+            return Float.floatToRawIntBits((y + 1f) * VECTOR_BUCKETS + MAGIC) - Float.floatToRawIntBits(MAGIC);
         }
 
         /**
@@ -161,7 +437,7 @@ public final class SegmentKernels {
     }
 
     /** The number of {@code mids} strictly below {@code y} (the definition). */
-    private static int count(double[] mids, double y) {
+    static int count(double[] mids, double y) {
         int c = 0;
         for (double mid : mids) {
             c += mid < y ? 1 : 0;

@@ -270,12 +270,25 @@ final class Engine {
     static float fitScale(double s, double target, double top) {
         float f = (float) s;
         float goal = (float) target;
-        float[] tries = {f, Math.nextUp(f), Math.nextDown(f), Math.nextUp(Math.nextUp(f)),
-            Math.nextDown(Math.nextDown(f))};
-        for (float c : tries) {
-            if (c > 0 && (float) (c * top) == goal) {
-                return c;
-            }
+        // the candidates in the order f, up, down, up twice, down twice (no array: this runs once per segment)
+        float up = Math.nextUp(f);
+        float down = Math.nextDown(f);
+        float up2 = Math.nextUp(up);
+        float down2 = Math.nextDown(down);
+        if (fits(f, top, goal)) {
+            return f;
+        }
+        if (fits(up, top, goal)) {
+            return up;
+        }
+        if (fits(down, top, goal)) {
+            return down;
+        }
+        if (fits(up2, top, goal)) {
+            return up2;
+        }
+        if (fits(down2, top, goal)) {
+            return down2;
         }
         if (!(f > 0)) {
             return Float.MIN_VALUE;
@@ -318,6 +331,10 @@ final class Engine {
             sf = hi > 0 ? fitScale(sf, hi, qmax - z) : fitScale(sf, lo, qmin - z);
         }
         return new float[] {sf, (float) z + 0f}; // + 0f turns -0 into 0
+    }
+
+    private static boolean fits(float c, double top, float goal) {
+        return c > 0 && (float) (c * top) == goal;
     }
 
     /**
@@ -609,6 +626,24 @@ final class Engine {
         return sc > 0 && sc < Float.POSITIVE_INFINITY;
     }
 
+    /** Values per run of segments that the kernels take in one call (a row of 4096 floats stays in L1). */
+    private static final int RUN_VALUES = 4096;
+
+    /** The number of segments per kernel call: whole segments of at most {@link #RUN_VALUES} values, at least one. */
+    private int runLength() {
+        return Math.max(1, Math.min(seg.count, RUN_VALUES / seg.size));
+    }
+
+    /** {@link #step} for the run of {@code len} segments from {@code s}: one check, the reports of its segments. */
+    private void stepRun(int s, int len) {
+        Progress.checkInterrupted(task);
+        int last = s + len - 1;
+        if (seg.count > 1 && (((last + 1) >>> 6) != (s >>> 6) || last == seg.count - 1)) {
+            int reported = last == seg.count - 1 ? seg.count : ((last + 1) & ~63);
+            progress.update(task, reported, seg.count, Double.NaN);
+        }
+    }
+
     private Quantized linearKernel() {
         path = "kernel";
         int m = seg.size;
@@ -619,33 +654,49 @@ final class Engine {
         short[] shorts = bytes == null ? new short[n] : null;
         int qmin = q.qmin();
         int qmax = q.qmax();
+        int run = runLength();
+        float[] lo = new float[run];
+        float[] hi = new float[run];
         float[] buf = null;
         int[] cbuf = null;
-        for (int s = 0; s < seg.count; s++) {
-            step(s);
-            int off = seg.offset(s);
-            float[] mm = Lanes.minMax(data, off, off + m, Float.POSITIVE_INFINITY, Float.NEGATIVE_INFINITY);
-            if (!(mm[0] >= -Float.MAX_VALUE && mm[1] <= Float.MAX_VALUE)) {
-                checkFinite(); // throws, naming the first NaN or infinity
+        for (int s0 = 0; s0 < seg.count; s0 += run) {
+            int len = Math.min(run, seg.count - s0);
+            stepRun(s0, len);
+            int off = seg.offset(s0); // contiguous: segment s0 + k starts at off + k * m
+            SegmentKernels.minMax(data, off, len, m, lo, hi);
+            boolean usual = true;
+            for (int k = 0; k < len; k++) {
+                if (!(lo[k] >= -Float.MAX_VALUE && hi[k] <= Float.MAX_VALUE)) {
+                    checkFinite(); // throws, naming the first NaN or infinity
+                }
+                float[] p = linearParams(new Range(lo[k], hi[k]));
+                scales[s0 + k] = p[0];
+                zps[s0 + k] = p[1];
+                usual &= usualScale(p[0]);
             }
-            float[] p = linearParams(new Range(mm[0], mm[1]));
-            scales[s] = p[0];
-            zps[s] = p[1];
-            if (usualScale(p[0])) {
-                SegmentKernels.linear(data, off, m, p[0], p[1], qmin, qmax, deq, bytes, shorts);
-            } else {
+            if (usual) {
+                SegmentKernels.linear(data, off, len, m, scales, zps, s0, qmin, qmax, deq, bytes, shorts);
+                continue;
+            }
+            for (int k = 0; k < len; k++) {
+                int s = s0 + k;
+                int o = off + k * m;
+                if (usualScale(scales[s])) {
+                    SegmentKernels.linear(data, o, m, scales[s], zps[s], qmin, qmax, deq, bytes, shorts);
+                    continue;
+                }
                 // a power-of-two scale that underflowed to 0 (or overflowed): the general loop, whatever it gives
                 if (buf == null) {
                     buf = new float[m];
                     cbuf = new int[m];
                 }
-                System.arraycopy(data, off, buf, 0, m);
-                linearSegment(buf, m, p[0], p[1], s, Rounding.nearest(), cbuf, deq, off);
+                System.arraycopy(data, o, buf, 0, m);
+                linearSegment(buf, m, scales[s], zps[s], s, Rounding.nearest(), cbuf, deq, o);
                 for (int i = 0; i < m; i++) {
                     if (bytes != null) {
-                        bytes[off + i] = (byte) cbuf[i];
+                        bytes[o + i] = (byte) cbuf[i];
                     } else {
-                        shorts[off + i] = (short) cbuf[i];
+                        shorts[o + i] = (short) cbuf[i];
                     }
                 }
             }
@@ -665,18 +716,21 @@ final class Engine {
         byte[] bytes = new byte[n];
         float[] y = new float[Math.min(m, KERNEL_CHUNK)];
         SegmentKernels.Levels table = NF4_TABLE;
-        for (int s = 0; s < seg.count; s++) {
-            step(s);
-            int off = seg.offset(s);
-            float a = Lanes.maxAbs(data, off, off + m);
-            if (!(a <= Float.MAX_VALUE)) {
-                checkFinite(); // throws, naming the first NaN or infinity
+        int run = runLength();
+        float[] amax = new float[run];
+        for (int s0 = 0; s0 < seg.count; s0 += run) {
+            int len = Math.min(run, seg.count - s0);
+            stepRun(s0, len);
+            int off = seg.offset(s0); // contiguous: segment s0 + k starts at off + k * m
+            SegmentKernels.maxAbs(data, off, len, m, amax);
+            for (int k = 0; k < len; k++) {
+                float a = amax[k];
+                if (!(a <= Float.MAX_VALUE)) {
+                    checkFinite(); // throws, naming the first NaN or infinity
+                }
+                scales[s0 + k] = q.pow2 ? levelScale(new Range(-a, a)) : (a > 0 ? a : 1f);
             }
-            float sc = levelScale(new Range(-a, a));
-            scales[s] = sc;
-            for (int c = 0; c < m; c += KERNEL_CHUNK) {
-                SegmentKernels.levels(data, off + c, Math.min(KERNEL_CHUNK, m - c), sc, table, deq, bytes, y);
-            }
+            SegmentKernels.levels(data, off, len, m, scales, s0, table, deq, bytes, y);
         }
         progress.finish(task);
         float[][] lv = new float[][] {Nf4.levels()};

@@ -138,4 +138,237 @@ class SegmentKernelsTest {
         assertThrows(IllegalArgumentException.class, () -> SegmentKernels.Levels.of(new float[] {-2f, 1f}));
         assertThrows(IllegalArgumentException.class, () -> SegmentKernels.Levels.of(new float[] {1f}));
     }
+
+    // ------------------------------------------------------------------ runs of segments, plain and Vector API
+
+    @Test
+    void theVectorKernelsArePresentInTheTestJvm() {
+        assertTrue(SegmentKernels.vectorised(), "surefire runs with --add-modules jdk.incubator.vector");
+    }
+
+    /** Values for a run of segments: random, signed zeros, ties of the scale, equal values (zero range). */
+    private static float[] runValues(SplittableRandom r, int n, float scale) {
+        float[] v = new float[n];
+        for (int i = 0; i < n; i++) {
+            int k = r.nextInt(8);
+            v[i] = k == 0 ? -0f : k == 1 ? 0f : k == 2 ? (float) ((r.nextInt(-20, 20) + 0.5) * scale)
+                    : (float) (r.nextGaussian() * scale * Math.exp(r.nextDouble(-6, 3)));
+        }
+        // a constant stretch (every segment inside it has a zero range)
+        int from = r.nextInt(Math.max(1, n / 2));
+        java.util.Arrays.fill(v, from, Math.min(n, from + n / 4), r.nextBoolean() ? 0f : 1.25f * scale);
+        return v;
+    }
+
+    @Test
+    void runReductionsAreThePlainMinimaAndMaxima() {
+        SplittableRandom r = new SplittableRandom(404);
+        for (int m : new int[] {1, 3, 7, 8, 9, 16, 31, 64, 100, 128, 257}) {
+            int count = 1 + r.nextInt(9);
+            int off = r.nextInt(5);
+            float[] w = runValues(r, off + count * m + 3, (float) Math.exp(r.nextDouble(-20, 20)));
+            float[] lo = new float[count];
+            float[] hi = new float[count];
+            float[] amax = new float[count];
+            float[] vlo = new float[count];
+            float[] vhi = new float[count];
+            float[] vamax = new float[count];
+            SegmentKernels.scalarMinMax(w, off, count, m, lo, hi);
+            SegmentKernels.scalarMaxAbs(w, off, count, m, amax);
+            VectorSegments.minMax(w, off, count, m, vlo, vhi);
+            VectorSegments.maxAbs(w, off, count, m, vamax);
+            for (int k = 0; k < count; k++) {
+                int from = off + k * m;
+                // Source: the definition, Math.min / Math.max over the segment (-0.0 below 0.0).
+                float[] want = Lanes.scalarMinMax(w, from, from + m, Float.POSITIVE_INFINITY,
+                        Float.NEGATIVE_INFINITY);
+                float wantAbs = Lanes.scalarMaxAbs(w, from, from + m);
+                String at = "m " + m + " segment " + k;
+                assertEquals(Float.floatToRawIntBits(want[0]), Float.floatToRawIntBits(lo[k]), "min, " + at);
+                assertEquals(Float.floatToRawIntBits(want[1]), Float.floatToRawIntBits(hi[k]), "max, " + at);
+                assertEquals(Float.floatToRawIntBits(wantAbs), Float.floatToRawIntBits(amax[k]), "max |x|, " + at);
+                assertEquals(Float.floatToRawIntBits(want[0]), Float.floatToRawIntBits(vlo[k]), "vector min, " + at);
+                assertEquals(Float.floatToRawIntBits(want[1]), Float.floatToRawIntBits(vhi[k]), "vector max, " + at);
+                assertEquals(Float.floatToRawIntBits(wantAbs), Float.floatToRawIntBits(vamax[k]),
+                        "vector max |x|, " + at);
+            }
+        }
+    }
+
+    @Test
+    void runReductionsMakeNanAndInfinityVisible() {
+        for (float bad : new float[] {Float.NaN, -Float.NaN, Float.intBitsToFloat(0xFFC00001),
+            Float.POSITIVE_INFINITY, Float.NEGATIVE_INFINITY}) {
+            for (int m : new int[] {1, 5, 8, 64, 70}) {
+                for (int at = 0; at < m; at += 3) {
+                    float[] w = new float[2 * m];
+                    java.util.Arrays.fill(w, -2.5f);
+                    w[m + at] = bad;
+                    float[][] lo = new float[2][2];
+                    float[][] hi = new float[2][2];
+                    float[][] amax = new float[2][2];
+                    SegmentKernels.scalarMinMax(w, 0, 2, m, lo[0], hi[0]);
+                    VectorSegments.minMax(w, 0, 2, m, lo[1], hi[1]);
+                    SegmentKernels.scalarMaxAbs(w, 0, 2, m, amax[0]);
+                    VectorSegments.maxAbs(w, 0, 2, m, amax[1]);
+                    for (int p = 0; p < 2; p++) {
+                        String what = (p == 0 ? "plain" : "vector") + " m " + m + " at " + at + " " + bad;
+                        assertEquals(-2.5f, lo[p][0], what);
+                        assertEquals(2.5f, amax[p][0], what);
+                        assertTrue(!Float.isFinite(lo[p][1]) || !Float.isFinite(hi[p][1]), what);
+                        assertTrue(!(amax[p][1] <= Float.MAX_VALUE), what);
+                    }
+                }
+            }
+        }
+    }
+
+    @Test
+    void runLinearKernelsEqualThePlainKernelBitForBit() {
+        SplittableRandom r = new SplittableRandom(405);
+        int redone = 0;
+        for (int trial = 0; trial < 120; trial++) {
+            int m = new int[] {1, 5, 8, 13, 16, 64, 128, 130}[trial % 8];
+            int count = 1 + r.nextInt(12);
+            int off = r.nextInt(9);
+            int bits = trial % 3 == 0 ? 2 + r.nextInt(15) : 2 + r.nextInt(7);
+            boolean unsigned = trial % 4 == 1;
+            int qmin = unsigned ? 0 : -(1 << (bits - 1));
+            int qmax = unsigned ? (1 << bits) - 1 : (1 << (bits - 1)) - 1;
+            float base = (float) Math.exp(r.nextDouble(-30, 30));
+            float[] w = runValues(r, off + count * m + 4, base);
+            float[] scales = new float[count + 2];
+            float[] zeros = trial % 5 == 0 ? null : new float[count + 2];
+            for (int k = 0; k < scales.length; k++) {
+                scales[k] = trial % 7 == 0 ? Math.scalb(1f, r.nextInt(-149, 100))
+                        : (float) (base * Math.exp(r.nextDouble(-3, 3)));
+                if (zeros != null) {
+                    zeros[k] = k % 3 == 0 ? 0f : qmin + r.nextInt(qmax - qmin + 1);
+                }
+            }
+            int s0 = r.nextInt(3);
+            for (int i = off; i < off + count * m; i++) {
+                if (r.nextInt(4) == 0) { // a tie of the segment's own scale (x / s a half-integer)
+                    float x = (float) ((r.nextInt(-2 * qmax - 4, 2 * qmax + 4) + 0.5) * scales[s0 + (i - off) / m]);
+                    w[i] = Float.isFinite(x) ? x : w[i];
+                }
+            }
+            boolean small = bits <= 8;
+            float[] deq = new float[w.length];
+            float[] vdeq = new float[w.length];
+            byte[] b = small ? new byte[w.length] : null;
+            byte[] vb = small ? new byte[w.length] : null;
+            short[] sh = small ? null : new short[w.length];
+            short[] vsh = small ? null : new short[w.length];
+            int want = SegmentKernels.scalarLinear(w, off, count, m, scales, zeros, s0, qmin, qmax, deq, b, sh);
+            int got = VectorSegments.linear(w, off, count, m, scales, zeros, s0, qmin, qmax, vdeq, vb, vsh);
+            redone += got;
+            for (int i = off; i < off + count * m; i++) {
+                int k = (i - off) / m;
+                String at = "trial " + trial + " x " + w[i] + " scale " + scales[s0 + k];
+                // Source: the definition clamp(rint(x / s + z)) in double (ties to even), value s (q - z).
+                float z = zeros == null ? 0f : zeros[s0 + k];
+                double c = Math.rint(w[i] / (double) scales[s0 + k] + z);
+                int code = (int) Math.max(qmin, Math.min(qmax, c));
+                float value = (float) ((double) scales[s0 + k] * (code - (double) z));
+                if (small) {
+                    assertEquals((byte) code, b[i], at);
+                    assertEquals(b[i], vb[i], at);
+                } else {
+                    assertEquals((short) code, sh[i], at);
+                    assertEquals(sh[i], vsh[i], at);
+                }
+                assertEquals(Float.floatToRawIntBits(value), Float.floatToRawIntBits(deq[i]), at);
+                assertEquals(Float.floatToRawIntBits(deq[i]), Float.floatToRawIntBits(vdeq[i]), at);
+            }
+            // nothing written outside the run
+            for (int i = 0; i < off; i++) {
+                assertEquals(0, Float.floatToRawIntBits(vdeq[i]));
+            }
+            for (int i = off + count * m; i < w.length; i++) {
+                assertEquals(0, Float.floatToRawIntBits(vdeq[i]));
+            }
+        }
+        assertTrue(redone > 1000, "ties were met and redone: " + redone);
+    }
+
+    @Test
+    void runLevelKernelsEqualThePlainKernelBitForBit() {
+        SplittableRandom r = new SplittableRandom(406);
+        float[] lv = Nf4.levels();
+        SegmentKernels.Levels table = SegmentKernels.Levels.of(lv);
+        float[] y = new float[4096];
+        int redone = 0;
+        for (int trial = 0; trial < 150; trial++) {
+            int m = new int[] {1, 7, 8, 9, 16, 64, 100, 4096 + 24}[trial % 8];
+            int count = 1 + r.nextInt(m > 200 ? 2 : 10);
+            int off = r.nextInt(9);
+            float[] w = new float[off + count * m + 5];
+            float[] scales = new float[count + 3];
+            int s0 = r.nextInt(3);
+            for (int k = 0; k < scales.length; k++) {
+                scales[k] = (float) Math.exp(r.nextDouble(-80, 80));
+            }
+            for (int k = 0; k < count; k++) {
+                float sc = scales[s0 + k];
+                boolean zeroBlock = r.nextInt(10) == 0;
+                for (int j = 0; j < m; j++) {
+                    int q = r.nextInt(15);
+                    float x = (float) (((double) lv[q] + lv[q + 1]) / 2 * sc);
+                    int c = r.nextInt(6);
+                    x = c == 0 ? Math.nextUp(x) : c == 1 ? Math.nextDown(x) : c == 2 ? x
+                            : c == 3 ? lv[r.nextInt(16)] * sc : (float) (r.nextDouble(-1, 1) * sc);
+                    // |x / scale| <= 1, as the absmax scale gives; all zeros in a zero-range block (scale 1)
+                    w[off + k * m + j] = zeroBlock ? (r.nextBoolean() ? 0f : -0f) : Math.max(-sc, Math.min(sc, x));
+                }
+            }
+            float[] deq = new float[w.length];
+            float[] vdeq = new float[w.length];
+            byte[] b = new byte[w.length];
+            byte[] vb = new byte[w.length];
+            SegmentKernels.scalarLevels(w, off, count, m, scales, s0, table, deq, b, y);
+            redone += VectorSegments.levels(w, off, count, m, scales, s0, table, vdeq, vb);
+            for (int i = off; i < off + count * m; i++) {
+                float sc = scales[s0 + (i - off) / m];
+                // Source: the definition, the number of midpoints (in double) strictly below w / scale (in double):
+                // a quotient exactly on a midpoint goes to the lower level.
+                double q = w[i] / (double) sc;
+                int want = 0;
+                for (int j = 0; j < 15; j++) {
+                    want += ((double) lv[j] + lv[j + 1]) / 2 < q ? 1 : 0;
+                }
+                String at = "trial " + trial + " x " + w[i] + " scale " + sc;
+                assertEquals(want, b[i], at);
+                assertEquals(b[i], vb[i], at);
+                assertEquals(Float.floatToRawIntBits(sc * lv[want]), Float.floatToRawIntBits(deq[i]), at);
+                assertEquals(Float.floatToRawIntBits(deq[i]), Float.floatToRawIntBits(vdeq[i]), at);
+            }
+            for (int i = off + count * m; i < w.length; i++) {
+                assertEquals(0, vb[i]);
+            }
+        }
+        assertTrue(redone > 1000, "values next to midpoints were counted in double: " + redone);
+    }
+
+    @Test
+    void vectorBucketsHoldOneCodeOrNone() {
+        // Every float quotient in [-1, 1] whose vector bucket has a code must have that code by the definition.
+        SegmentKernels.Levels table = SegmentKernels.Levels.of(Nf4.levels());
+        float[] lv = Nf4.levels();
+        SplittableRandom r = new SplittableRandom(407);
+        int checked = 0;
+        for (int t = 0; t < 2_000_000; t++) {
+            float yv = t % 2 == 0 ? (float) r.nextDouble(-1, 1)
+                    : Math.nextAfter((float) (((double) lv[t % 15] + lv[t % 15 + 1]) / 2), r.nextBoolean() ? 2 : -2);
+            int b = SegmentKernels.Levels.vectorBucket(yv);
+            int code = table.vectorCodes[b];
+            if (code >= 0) {
+                // Source: the definition, the number of midpoints (in double) strictly below the quotient.
+                assertEquals(SegmentKernels.count(table.mids, yv), code, "y " + yv);
+                assertEquals(lv[code], table.vectorLevels[b]);
+                checked++;
+            }
+        }
+        assertTrue(checked > 900_000, "the random quotients' buckets mostly hold one code: " + checked);
+    }
 }

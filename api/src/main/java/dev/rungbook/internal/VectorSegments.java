@@ -1,0 +1,195 @@
+package dev.rungbook.internal;
+
+import jdk.incubator.vector.ByteVector;
+import jdk.incubator.vector.FloatVector;
+import jdk.incubator.vector.IntVector;
+import jdk.incubator.vector.ShortVector;
+import jdk.incubator.vector.VectorMask;
+import jdk.incubator.vector.VectorOperators;
+import jdk.incubator.vector.VectorSpecies;
+
+/**
+ * The run-of-segments kernels of {@link SegmentKernels} with the JDK's incubating Vector API. Loaded (by
+ * {@link SegmentKernels}, through {@link Lanes#vectorClass}) only when the JVM runs with
+ * {@code --add-modules jdk.incubator.vector}; nothing else may refer to this class. Internal.
+ *
+ * <p>Every lane does the float operations of the plain loops in {@link SegmentKernels} in the same order (a vector
+ * division, addition or comparison is the IEEE operation of each lane), and the lanes that the plain loops would
+ * redo in double (a linear quotient on a half-integer, a level quotient on a midpoint's float neighbour) are redone
+ * here the same way, one lane at a time; so the codes and values are those of the plain loops bit for bit
+ * ({@code SegmentKernelsTest} checks it). Minimum and maximum follow {@link Math#min}/{@link Math#max}, as in
+ * {@link VectorLanes}, whose vector shape (the preferred one) this class keeps.
+ */
+final class VectorSegments {
+    /** The reductions' vectors: the preferred shape, as {@link VectorLanes}'s reductions. */
+    private static final VectorSpecies<Float> S = FloatVector.SPECIES_PREFERRED;
+    private static final int L = S.length();
+    private static final VectorSpecies<Integer> SI = IntVector.SPECIES_PREFERRED;
+    /**
+     * The arithmetic kernels' vectors: eight float lanes, the shape of {@code VectorLanes.errorSums}' arithmetic.
+     * Vector API methods are shared code whose receiver profiles the JIT reads; a second shape of the same float
+     * operations there made the JIT give up compiling the other kernels' vectors (measured: the error sums took 2.5x
+     * as long in a JVM that also ran a preferred-shape form of the linear kernel).
+     */
+    private static final VectorSpecies<Float> A = FloatVector.SPECIES_256;
+    private static final int AL = A.length();
+    private static final VectorSpecies<Integer> AI = IntVector.SPECIES_256;
+    private static final VectorSpecies<Byte> AB = ByteVector.SPECIES_64;
+    private static final VectorSpecies<Short> AS = ShortVector.SPECIES_128;
+    private static final float MAGIC = 12582912f; // 1.5 * 2^23, as in SegmentKernels
+    private static final int MAGIC_BITS = Float.floatToRawIntBits(MAGIC);
+
+    static {
+        if (SI.length() != L) {
+            throw new IllegalStateException("float and int vectors of different lane counts");
+        }
+    }
+
+    private VectorSegments() {
+    }
+
+    /** The number of float lanes of the arithmetic kernels. */
+    static int lanes() {
+        return AL;
+    }
+
+    /**
+     * {@code SegmentKernels.minMax} (the same results): floats compared as the integers
+     * {@code b ^ ((b >> 31) & 0x7FFFFFFF)} of their bits, which order them as {@link Math#min} does (integer
+     * reductions are cheaper than float ones, whose lanes must honour {@code -0.0} and NaN).
+     */
+    static void minMax(float[] w, int off, int count, int m, float[] lo, float[] hi) {
+        int vend = m - m % L;
+        for (int k = 0; k < count; k++) {
+            int base = off + k * m;
+            IntVector mn = IntVector.broadcast(SI, Integer.MAX_VALUE);
+            IntVector mx = IntVector.broadcast(SI, Integer.MIN_VALUE);
+            for (int j = 0; j < vend; j += L) {
+                IntVector b = (IntVector) FloatVector.fromArray(S, w, base + j).reinterpretShape(SI, 0);
+                IntVector key = b.lanewise(VectorOperators.ASHR, 31).and(0x7FFFFFFF).lanewise(VectorOperators.XOR, b);
+                mn = mn.min(key);
+                mx = mx.max(key);
+            }
+            int a = mn.reduceLanes(VectorOperators.MIN);
+            int c = mx.reduceLanes(VectorOperators.MAX);
+            float fa = vend == 0 ? Float.POSITIVE_INFINITY : Float.intBitsToFloat(a ^ ((a >> 31) & 0x7FFFFFFF));
+            float fc = vend == 0 ? Float.NEGATIVE_INFINITY : Float.intBitsToFloat(c ^ ((c >> 31) & 0x7FFFFFFF));
+            for (int i = base + vend; i < base + m; i++) {
+                fa = Math.min(fa, w[i]);
+                fc = Math.max(fc, w[i]);
+            }
+            lo[k] = fa;
+            hi[k] = fc;
+        }
+    }
+
+    /** {@code SegmentKernels.maxAbs} (the same results): magnitudes compared as their bit patterns. */
+    static void maxAbs(float[] w, int off, int count, int m, float[] amax) {
+        int vend = m - m % L;
+        for (int k = 0; k < count; k++) {
+            int base = off + k * m;
+            IntVector mx = IntVector.zero(SI);
+            for (int j = 0; j < vend; j += L) {
+                mx = mx.max(((IntVector) FloatVector.fromArray(S, w, base + j).reinterpretShape(SI, 0)).and(0x7FFFFFFF));
+            }
+            int b = mx.reduceLanes(VectorOperators.MAX);
+            for (int i = base + vend; i < base + m; i++) {
+                b = Math.max(b, Float.floatToRawIntBits(w[i]) & 0x7FFFFFFF);
+            }
+            amax[k] = Float.intBitsToFloat(b);
+        }
+    }
+
+    /**
+     * {@code SegmentKernels.linear} over {@code count} segments of {@code m} values from {@code off}, segment
+     * {@code k} with scale {@code scales[s0 + k]} and zero point {@code zeros[s0 + k]} (0 if {@code zeros} is null).
+     * The integer code is read from the bits of {@code c + 1.5 * 2^23} (exact for {@code |c| < 2^22}), as Java 17's
+     * Vector API has no float-to-int conversion the JIT compiles.
+     */
+    static int linear(float[] w, int off, int count, int m, float[] scales, float[] zeros, int s0, int qmin,
+            int qmax, float[] deq, byte[] bytes, short[] shorts) {
+        int vend = m - m % AL;
+        float lo = qmin;
+        float hi = qmax;
+        int redo = 0;
+        for (int k = 0; k < count; k++) {
+            int base = off + k * m;
+            float sc = scales[s0 + k];
+            float z = zeros == null ? 0f : zeros[s0 + k];
+            for (int j = 0; j < vend; j += AL) {
+                int i = base + j;
+                FloatVector t = FloatVector.fromArray(A, w, i).div(sc);
+                FloatVector r = t.add(MAGIC).sub(MAGIC);
+                // a half-integer quotient (or one beyond 2^22, or infinite): the definition decides, in double
+                // (d * d is below 0.25 exactly when |d| < 0.5: no float square of |d| <= 0.5 - 2^-25 rounds up to it)
+                FloatVector d = t.sub(r);
+                VectorMask<Float> tie = d.mul(d).compare(VectorOperators.LT, 0.25f).not();
+                FloatVector c = r.add(z).min(hi).max(lo);
+                IntVector ci = ((IntVector) c.add(MAGIC).reinterpretShape(AI, 0)).sub(MAGIC_BITS);
+                if (bytes != null) {
+                    ((ByteVector) ci.convertShape(VectorOperators.I2B, AB, 0)).intoArray(bytes, i);
+                } else {
+                    ((ShortVector) ci.convertShape(VectorOperators.I2S, AS, 0)).intoArray(shorts, i);
+                }
+                c.sub(z).mul(sc).intoArray(deq, i);
+                if (tie.anyTrue()) {
+                    // the plain kernel on these lanes: it redoes the same ties in double
+                    redo += SegmentKernels.linear(w, i, AL, sc, z, qmin, qmax, deq, bytes, shorts);
+                }
+            }
+            if (vend < m) {
+                redo += SegmentKernels.linear(w, base + vend, m - vend, sc, z, qmin, qmax, deq, bytes, shorts);
+            }
+        }
+        return redo;
+    }
+
+    /**
+     * {@code SegmentKernels.levels} over {@code count} segments of {@code m} values from {@code off}, segment
+     * {@code k} with scale {@code scales[s0 + k]}.
+     *
+     * <p>The float quotient {@code y} picks a bucket {@code rint((y + 1) * B)} ({@code B = Levels.VECTOR_BUCKETS},
+     * rounded through {@code + 1.5 * 2^23} as above; monotone in {@code y}), and two gathers read the bucket's code
+     * and level from the table's vector buckets; a bucket that holds a midpoint's float neighbour has code -1, and its
+     * lanes are counted as the definition says, in double.
+     */
+    static int levels(float[] w, int off, int count, int m, float[] scales, int s0, SegmentKernels.Levels table,
+            float[] deq, byte[] bytes) {
+        int[] codes = table.vectorCodes;
+        float[] values = table.vectorLevels;
+        float nb = SegmentKernels.Levels.VECTOR_BUCKETS;
+        int[] idx = new int[AL];
+        float[] scratch = new float[AL];
+        int vend = m - m % AL;
+        int redo = 0;
+        for (int k = 0; k < count; k++) {
+            int base = off + k * m;
+            float sc = scales[s0 + k];
+            for (int j = 0; j < vend; j += AL) {
+                int i = base + j;
+                FloatVector y = FloatVector.fromArray(A, w, i).div(sc);
+                ((IntVector) y.add(1f).mul(nb).add(MAGIC).reinterpretShape(AI, 0)).sub(MAGIC_BITS).intoArray(idx, 0);
+                IntVector c = IntVector.fromArray(AI, codes, 0, idx, 0);
+                FloatVector v = FloatVector.fromArray(A, values, 0, idx, 0);
+                ((ByteVector) c.convertShape(VectorOperators.I2B, AB, 0)).intoArray(bytes, i);
+                v.mul(sc).intoArray(deq, i);
+                if (c.compare(VectorOperators.LT, 0).anyTrue()) {
+                    // the lanes of a bucket with a midpoint's neighbour: the definition, in double
+                    c.intoArray(idx, 0);
+                    for (int l = 0; l < AL; l++) {
+                        if (idx[l] < 0) {
+                            int code = SegmentKernels.count(table.mids, w[i + l] / (double) sc);
+                            bytes[i + l] = (byte) code;
+                            deq[i + l] = sc * table.levels[code];
+                            redo++;
+                        }
+                    }
+                }
+            }
+            if (vend < m) {
+                redo += SegmentKernels.levels(w, base + vend, m - vend, sc, table, deq, bytes, scratch);
+            }
+        }
+        return redo;
+    }
+}

@@ -1,0 +1,166 @@
+package dev.rungbook.bench;
+
+import java.io.IOException;
+import java.lang.management.ManagementFactory;
+import java.lang.management.ThreadMXBean;
+import java.net.URL;
+import java.net.URLClassLoader;
+import java.nio.charset.StandardCharsets;
+import java.nio.file.Files;
+import java.nio.file.Path;
+import java.nio.file.StandardCopyOption;
+import java.util.ArrayList;
+import java.util.Arrays;
+import java.util.List;
+import java.util.Locale;
+import java.util.function.DoubleSupplier;
+import java.util.function.Function;
+
+/**
+ * {@code apply} of per-group int4 and NF4 on a 4096 x 4096 matrix ({@link SegmentSubject}) timed by the benchmark
+ * thread's CPU time, interleaved (each repetition runs every case once in turn; the first {@code WARM} are dropped;
+ * median and minimum of the rest), next to one plain copy of the matrix. With {@code --before OLD.jar} the same
+ * cases of an older library version run in the same JVM (a class loader takes every {@code dev.rungbook} class from
+ * {@code OLD.jar}, then from the benchmark jar for {@link SegmentSubject}); their names end in {@code Before}.
+ *
+ * <p>Output in JMH's JSON layout (score = median thread-CPU ms per call, mode {@code "cpu-time median"}), with the
+ * minimum, the wall-clock median and the load average before and after.
+ *
+ * <p>Usage: {@code java -Xmx6g [--add-modules jdk.incubator.vector] -cp bench/target/benchmarks.jar
+ * dev.rungbook.bench.SegmentCpuTime OUT.json [--before OLD.jar] [--reps N]}.
+ */
+public final class SegmentCpuTime {
+    private static final int WARM = 4;
+
+    private SegmentCpuTime() {
+    }
+
+    private record Case(String name, DoubleSupplier body) {
+    }
+
+    /** Loads {@code dev.rungbook} classes from its own URLs first, everything else from the parent. */
+    private static final class ChildFirst extends URLClassLoader {
+        ChildFirst(URL[] urls, ClassLoader parent) {
+            super(urls, parent);
+        }
+
+        @Override
+        protected Class<?> loadClass(String name, boolean resolve) throws ClassNotFoundException {
+            if (!name.startsWith("dev.rungbook.")) {
+                return super.loadClass(name, resolve);
+            }
+            synchronized (getClassLoadingLock(name)) {
+                Class<?> c = findLoadedClass(name);
+                if (c == null) {
+                    c = findClass(name);
+                }
+                if (resolve) {
+                    resolveClass(c);
+                }
+                return c;
+            }
+        }
+    }
+
+    private static String load() {
+        try {
+            return Files.readString(Path.of("/proc/loadavg")).strip();
+        } catch (IOException e) {
+            return "n/a";
+        }
+    }
+
+    private static boolean vectorModule() {
+        return ModuleLayer.boot().findModule("jdk.incubator.vector").isPresent();
+    }
+
+    @SuppressWarnings("unchecked")
+    private static void add(List<Case> cases, Object subject, String suffix) throws ReflectiveOperationException {
+        Function<String, DoubleSupplier> f = (Function<String, DoubleSupplier>) subject;
+        for (String name : (Iterable<String>) subject.getClass().getMethod("names").invoke(subject)) {
+            cases.add(new Case(name + suffix, f.apply(name)));
+        }
+    }
+
+    public static void main(String[] args) throws Exception {
+        if (args.length < 1) {
+            System.err.println("usage: SegmentCpuTime OUT.json [--before OLD.jar] [--reps N]");
+            System.exit(2);
+        }
+        Path outFile = Path.of(args[0]).toAbsolutePath();
+        Path before = null;
+        int reps = 15;
+        for (int i = 1; i < args.length; i++) {
+            if (args[i].equals("--before")) {
+                before = Path.of(args[++i]);
+            } else if (args[i].equals("--reps")) {
+                reps = Integer.parseInt(args[++i]);
+            } else {
+                throw new IllegalArgumentException("unknown argument " + args[i]);
+            }
+        }
+        String loadStart = load();
+        List<Case> cases = new ArrayList<>();
+        float[] src = new float[4096 * 4096];
+        float[] copy = new float[src.length];
+        Arrays.fill(src, 1.5f);
+        cases.add(new Case("plainCopy", () -> {
+            System.arraycopy(src, 0, copy, 0, src.length);
+            return copy[copy.length - 1];
+        }));
+        add(cases, new SegmentSubject(), "");
+        if (before != null) {
+            if (!Files.isRegularFile(before)) {
+                throw new IllegalArgumentException("--before: no jar at " + before.toAbsolutePath());
+            }
+            URL bench = SegmentCpuTime.class.getProtectionDomain().getCodeSource().getLocation();
+            ClassLoader old = new ChildFirst(new URL[] {before.toUri().toURL(), bench},
+                    SegmentCpuTime.class.getClassLoader());
+            Object subject = old.loadClass(SegmentSubject.class.getName()).getConstructor().newInstance();
+            if (subject.getClass().getClassLoader() != old) {
+                throw new IllegalStateException("the older library's subject was not loaded from " + before);
+            }
+            add(cases, subject, "Before");
+        }
+        ThreadMXBean bean = ManagementFactory.getThreadMXBean();
+        double[][] cpu = new double[cases.size()][reps];
+        double[][] wall = new double[cases.size()][reps];
+        double sink = 0;
+        for (int rep = 0; rep < WARM + reps; rep++) {
+            for (int c = 0; c < cases.size(); c++) {
+                long w0 = System.nanoTime();
+                long t0 = bean.getCurrentThreadCpuTime();
+                sink += cases.get(c).body().getAsDouble();
+                long t1 = bean.getCurrentThreadCpuTime();
+                long w1 = System.nanoTime();
+                if (rep >= WARM) {
+                    cpu[c][rep - WARM] = (t1 - t0) / 1e6;
+                    wall[c][rep - WARM] = (w1 - w0) / 1e6;
+                }
+            }
+        }
+        String loadEnd = load();
+        List<String> rows = new ArrayList<>();
+        for (int c = 0; c < cases.size(); c++) {
+            double[] t = cpu[c].clone();
+            double[] w = wall[c].clone();
+            Arrays.sort(t);
+            Arrays.sort(w);
+            Case k = cases.get(c);
+            double median = t[t.length / 2];
+            System.out.printf(Locale.ROOT, "%-32s cpu median %8.2f ms, min %8.2f; wall median %8.2f%n", k.name(),
+                    median, t[0], w[w.length / 2]);
+            rows.add(String.format(Locale.ROOT, "{\"benchmark\": \"dev.rungbook.bench.SegmentCpuTime.%s\", "
+                    + "\"mode\": \"cpu-time median\", \"threads\": 1, \"primaryMetric\": {\"score\": %.3f, "
+                    + "\"scoreUnit\": \"ms/op\", \"min\": %.3f, \"wallMedian\": %.3f, \"repetitions\": %d}, "
+                    + "\"loadStart\": \"%s\", \"loadEnd\": \"%s\", \"vectorModule\": %b, \"before\": \"%s\"}",
+                    k.name(), median, t[0], w[w.length / 2], reps, loadStart, loadEnd, vectorModule(),
+                    before == null ? "" : before.getFileName()));
+        }
+        System.out.println("(checksum " + sink + "; load " + loadStart + " -> " + loadEnd + "; vector module "
+                + vectorModule() + ")");
+        Path tmp = Files.createTempFile(outFile.getParent(), outFile.getFileName().toString(), ".tmp");
+        Files.writeString(tmp, "[\n" + String.join(",\n", rows) + "\n]\n", StandardCharsets.UTF_8);
+        Files.move(tmp, outFile, StandardCopyOption.REPLACE_EXISTING, StandardCopyOption.ATOMIC_MOVE);
+    }
+}
