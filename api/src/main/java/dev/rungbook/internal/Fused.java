@@ -21,7 +21,7 @@ package dev.rungbook.internal;
  * <p>Error sums per row: {@code sqErr = sum (x - dequant)^2}, {@code sqSignal = sum x^2}. They are accumulated on
  * values measured in steps ({@code (x - dequant) / scale}, {@code x / scale}, so float squares cannot overflow or
  * underflow whatever the magnitudes), in float over chunks of 64 values (eight interleaved partial sums per chunk,
- * see {@link #errorSums}) and in double across chunks, then multiplied by {@code scale^2} in double (relative
+ * see {@link #scalarErrorSums}) and in double across chunks, then multiplied by {@code scale^2} in double (relative
  * rounding error below about {@code 1e-5}, typically {@code 1e-7}). MSE = {@code sqErr / cols}; SQNR = {@code 10 log10(sqSignal / sqErr)}.
  *
  * <p>The rounding is the magic-number trick {@code (v + 1.5 * 2^23) - 1.5 * 2^23}, exact round-half-even for
@@ -104,7 +104,7 @@ public final class Fused {
             amax = Math.max(amax, Math.max(-mm[0], mm[1]));
             float zp = zps[r];
             roundRow(w, off, cols, lo, hi, scale, zp, dq);
-            dequantRow(w, off, cols, scale, zp, dq, bytes, shorts, sums, vector);
+            dequantRow(w, off, cols, scale, zp, dq, bytes, shorts, sums);
             if (wantSums) {
                 double s2 = (double) scale * scale;
                 if (sqErr != null) {
@@ -187,7 +187,7 @@ public final class Fused {
      * scale into {@code sums[0]} and {@code sums[1]}.
      */
     private static void dequantRow(float[] w, int off, int cols, float scale, float zp, float[] dq, byte[] bytes,
-            short[] shorts, double[] sums, boolean vector) {
+            short[] shorts, double[] sums) {
         int end = off + cols;
         if (bytes != null) {
             for (int i = off; i < end; i++) {
@@ -204,9 +204,40 @@ public final class Fused {
         if (sums != null) {
             // Sums run on values measured in steps (x / scale), so float squares neither overflow nor underflow.
             float inv = 1f / scale;
-            double[] es = vector ? errorSums(w, dq, off, end, inv) : scalarErrorSums(w, dq, off, end, inv);
+            double[] es = scalarErrorSums(w, dq, off, end, inv);
             sums[0] = es[0];
             sums[1] = es[1];
+        }
+    }
+
+    /**
+     * The error and signal sums of {@code count} contiguous segments of {@code m} values from {@code off} (segment
+     * {@code k} at {@code off + k * m}, scale {@code scales[s0 + k]}) into {@code sqErr[s0 + k]} and
+     * {@code sqSignal[s0 + k]} (either may be null): {@link #scalarErrorSums} of the segment with {@code inv = 1 /
+     * scale}, times {@code scale^2} in double. On the Vector API when the module is there, with the same bits.
+     */
+    static void segmentSums(float[] w, float[] d, int off, int count, int m, float[] scales, int s0, double[] sqErr,
+            double[] sqSignal) {
+        if (Lanes.vectorSegmentSums(w, d, off, count, m, scales, s0, sqErr, sqSignal)) {
+            return;
+        }
+        scalarSegmentSums(w, d, off, count, m, scales, s0, sqErr, sqSignal);
+    }
+
+    /** {@link #segmentSums} as plain loops (the fallback, and the reference for tests). */
+    static void scalarSegmentSums(float[] w, float[] d, int off, int count, int m, float[] scales, int s0,
+            double[] sqErr, double[] sqSignal) {
+        for (int k = 0; k < count; k++) {
+            float sc = scales[s0 + k];
+            int from = off + k * m;
+            double[] e = scalarErrorSums(w, d, from, from + m, 1f / sc);
+            double s2 = (double) sc * sc;
+            if (sqErr != null) {
+                sqErr[s0 + k] = e[0] * s2;
+            }
+            if (sqSignal != null) {
+                sqSignal[s0 + k] = e[1] * s2;
+            }
         }
     }
 
@@ -216,12 +247,6 @@ public final class Fused {
      * the chunk into sum {@code i mod LANES}), added pairwise ({@code ((s0 + s1) + (s2 + s3)) + ((s4 + s5) + (s6 +
      * s7))}), chunk totals added in double. Eight independent sums keep the additions off one dependency chain.
      */
-    static double[] errorSums(float[] w, float[] d, int from, int to, float inv) {
-        double[] vector = Lanes.vectorErrorSums(w, d, from, to, inv);
-        return vector != null ? vector : scalarErrorSums(w, d, from, to, inv);
-    }
-
-    /** {@link #errorSums} as plain loops (the fallback, and the reference for tests). */
     static double[] scalarErrorSums(float[] w, float[] d, int from, int to, float inv) {
         double e = 0;
         double s = 0;

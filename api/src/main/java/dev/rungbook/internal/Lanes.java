@@ -36,8 +36,9 @@ public final class Lanes {
                         int.class, float.class, float.class));
                 ma = l.findStatic(c, "maxAbs", MethodType.methodType(float.class, float[].class, int.class,
                         int.class));
-                es = l.findStatic(c, "errorSums", MethodType.methodType(double[].class, float[].class,
-                        float[].class, int.class, int.class, float.class));
+                es = l.findStatic(c, "segmentSums", MethodType.methodType(void.class, float[].class,
+                        float[].class, int.class, int.class, int.class, float[].class, int.class, double[].class,
+                        double[].class));
                 qr = l.findStatic(c, "quantizeRows", MethodType.methodType(float.class, float[].class, int.class,
                         int.class, int.class, boolean.class, float[].class, int[].class, byte[].class, short[].class,
                         float[].class, double[].class, double[].class));
@@ -134,13 +135,15 @@ public final class Lanes {
         return scalarMaxAbs(v, from, to);
     }
 
-    /** The Vector API form of {@code Fused.errorSums} (same results), or null on the scalar path. */
-    static double[] vectorErrorSums(float[] w, float[] d, int from, int to, float inv) {
+    /** The Vector API form of {@code Fused.segmentSums} (same results); false, doing nothing, on the scalar path. */
+    static boolean vectorSegmentSums(float[] w, float[] d, int off, int count, int m, float[] scales, int s0,
+            double[] sqErr, double[] sqSignal) {
         if (ERROR_SUMS == null) {
-            return null;
+            return false;
         }
         try {
-            return (double[]) ERROR_SUMS.invokeExact(w, d, from, to, inv);
+            ERROR_SUMS.invokeExact(w, d, off, count, m, scales, s0, sqErr, sqSignal);
+            return true;
         } catch (Throwable e) {
             throw unchecked(e);
         }

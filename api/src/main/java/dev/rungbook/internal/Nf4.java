@@ -14,6 +14,7 @@ import org.apache.commons.math3.distribution.NormalDistribution;
 public final class Nf4 {
     private static final float[] LEVELS = build();
     private static final double[] MIDPOINTS = midpoints(LEVELS);
+    private static final SegmentKernels.Levels TABLE = SegmentKernels.Levels.of(LEVELS);
 
     private Nf4() {
     }
@@ -45,6 +46,11 @@ public final class Nf4 {
             m[i] = 0.5 * ((double) levels[i] + levels[i + 1]);
         }
         return m;
+    }
+
+    /** The 16 levels as the segment kernels' lookup table ({@link SegmentKernels#levels}). */
+    public static SegmentKernels.Levels table() {
+        return TABLE;
     }
 
     /** The 16 levels, ascending, from -1 to 1 with an exact 0 at index 7 (a fresh copy). */

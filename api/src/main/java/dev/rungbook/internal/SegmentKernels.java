@@ -55,9 +55,10 @@ public final class SegmentKernels {
                         int.class, float[].class));
                 li = l.findStatic(c, "linear", MethodType.methodType(int.class, float[].class, int.class, int.class,
                         int.class, float[].class, float[].class, int.class, int.class, int.class, float[].class,
-                        byte[].class, short[].class));
+                        byte[].class, short[].class, int.class, float[].class));
                 lv = l.findStatic(c, "levels", MethodType.methodType(int.class, float[].class, int.class, int.class,
-                        int.class, float[].class, int.class, Levels.class, float[].class, byte[].class));
+                        int.class, float[].class, int.class, Levels.class, float[].class, byte[].class, int.class,
+                        float[].class));
                 int lanes = (int) l.findStatic(c, "lanes", MethodType.methodType(int.class)).invokeExact();
                 Checks.require(lanes == 8, "8 lanes");
             } catch (Throwable e) { // no usable Vector API: the plain loops
@@ -223,15 +224,36 @@ public final class SegmentKernels {
      */
     public static int linear(float[] w, int off, int count, int m, float[] scales, float[] zeros, int s0, int qmin,
             int qmax, float[] deq, byte[] bytes, short[] shorts) {
+        return linear(w, off, count, m, scales, zeros, s0, qmin, qmax, deq, bytes, shorts, 0, null);
+    }
+
+    /**
+     * {@link #linear(float[], int, int, int, float[], float[], int, int, int, float[], byte[], short[])}, and
+     * {@link #maxAbs} of the first {@code nextCount} segments of the next run (the {@code nextCount <= count}
+     * segments from {@code off + count * m}) into {@code nextAmax}: on the Vector API in the same pass, so that the
+     * next run is read from memory while this one is quantized.
+     *
+     * @return the number of elements redone in double
+     */
+    public static int linear(float[] w, int off, int count, int m, float[] scales, float[] zeros, int s0, int qmin,
+            int qmax, float[] deq, byte[] bytes, short[] shorts, int nextCount, float[] nextAmax) {
+        checkAhead(count, nextCount);
         if (V_LINEAR != null) {
             try {
                 return (int) V_LINEAR.invokeExact(w, off, count, m, scales, zeros, s0, qmin, qmax, deq, bytes,
-                        shorts);
+                        shorts, nextCount, nextAmax);
             } catch (Throwable e) {
                 throw unchecked(e);
             }
         }
-        return scalarLinear(w, off, count, m, scales, zeros, s0, qmin, qmax, deq, bytes, shorts);
+        int redo = scalarLinear(w, off, count, m, scales, zeros, s0, qmin, qmax, deq, bytes, shorts);
+        scalarMaxAbs(w, off + count * m, nextCount, m, nextAmax);
+        return redo;
+    }
+
+    private static void checkAhead(int count, int nextCount) {
+        Checks.require(nextCount >= 0 && nextCount <= count, "the next run has %d segments, this one %d", nextCount,
+                count);
     }
 
     /** {@link #linear(float[], int, int, int, float[], float[], int, int, int, float[], byte[], short[])}, plain. */
@@ -254,14 +276,30 @@ public final class SegmentKernels {
      */
     public static int levels(float[] w, int off, int count, int m, float[] scales, int s0, Levels table, float[] deq,
             byte[] bytes, float[] y) {
+        return levels(w, off, count, m, scales, s0, table, deq, bytes, y, 0, null);
+    }
+
+    /**
+     * {@link #levels(float[], int, int, int, float[], int, Levels, float[], byte[], float[])} and, as
+     * {@link #linear(float[], int, int, int, float[], float[], int, int, int, float[], byte[], short[], int,
+     * float[])} does, the largest magnitudes of the next run's first {@code nextCount} segments.
+     *
+     * @return the number of elements counted in double
+     */
+    public static int levels(float[] w, int off, int count, int m, float[] scales, int s0, Levels table, float[] deq,
+            byte[] bytes, float[] y, int nextCount, float[] nextAmax) {
+        checkAhead(count, nextCount);
         if (V_LEVELS != null) {
             try {
-                return (int) V_LEVELS.invokeExact(w, off, count, m, scales, s0, table, deq, bytes);
+                return (int) V_LEVELS.invokeExact(w, off, count, m, scales, s0, table, deq, bytes, nextCount,
+                        nextAmax);
             } catch (Throwable e) {
                 throw unchecked(e);
             }
         }
-        return scalarLevels(w, off, count, m, scales, s0, table, deq, bytes, y);
+        int redo = scalarLevels(w, off, count, m, scales, s0, table, deq, bytes, y);
+        scalarMaxAbs(w, off + count * m, nextCount, m, nextAmax);
+        return redo;
     }
 
     /** {@link #levels(float[], int, int, int, float[], int, Levels, float[], byte[], float[])}, plain. */

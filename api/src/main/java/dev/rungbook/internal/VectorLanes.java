@@ -21,7 +21,7 @@ final class VectorLanes {
     /** The shape of every float vector here (and in the other kernels): 256 bits. */
     private static final VectorSpecies<Float> S = FloatVector.SPECIES_256;
 
-    /** Eight lanes, as the fixed summation order of {@code Fused.errorSums} has. */
+    /** Eight lanes, as the fixed summation order of {@code Fused.scalarErrorSums} has. */
     private static final VectorSpecies<Float> S8 = FloatVector.SPECIES_256;
     private static final int CHUNK = 64;
 
@@ -29,38 +29,52 @@ final class VectorLanes {
     }
 
     /**
-     * {@code Fused.errorSums} with eight-lane vectors: lane {@code j} adds the values {@code j mod 8} of each chunk
-     * in order, exactly as the scalar partial sums do, and the lanes are combined in the same pairwise order.
+     * {@code Fused.segmentSums} with eight-lane vectors: per segment, lane {@code j} adds the values {@code j mod 8}
+     * of each chunk in order, exactly as the scalar partial sums of {@code Fused.scalarErrorSums} do, and the lanes
+     * are combined in the same pairwise order; the same bits.
      */
-    static double[] errorSums(float[] w, float[] d, int from, int to, float inv) {
-        double e = 0;
-        double s = 0;
+    static void segmentSums(float[] w, float[] d, int off, int count, int m, float[] scales, int s0, double[] sqErr,
+            double[] sqSignal) {
         float[] le = new float[8];
         float[] ls = new float[8];
-        for (int c = from; c < to; c += CHUNK) {
-            int stop = Math.min(to, c + CHUNK);
-            FloatVector ve = FloatVector.zero(S8);
-            FloatVector vs = FloatVector.zero(S8);
-            int i = c;
-            for (; i + 8 <= stop; i += 8) {
-                FloatVector x = FloatVector.fromArray(S8, w, i);
-                FloatVector dd = x.sub(FloatVector.fromArray(S8, d, i)).mul(inv);
-                FloatVector u = x.mul(inv);
-                ve = ve.add(dd.mul(dd));
-                vs = vs.add(u.mul(u));
+        for (int k = 0; k < count; k++) {
+            int from = off + k * m;
+            int to = from + m;
+            float sc = scales[s0 + k];
+            float inv = 1f / sc;
+            double e = 0;
+            double s = 0;
+            for (int c = from; c < to; c += CHUNK) {
+                int stop = Math.min(to, c + CHUNK);
+                FloatVector ve = FloatVector.zero(S8);
+                FloatVector vs = FloatVector.zero(S8);
+                int i = c;
+                for (; i + 8 <= stop; i += 8) {
+                    FloatVector x = FloatVector.fromArray(S8, w, i);
+                    FloatVector dd = x.sub(FloatVector.fromArray(S8, d, i)).mul(inv);
+                    FloatVector u = x.mul(inv);
+                    ve = ve.add(dd.mul(dd));
+                    vs = vs.add(u.mul(u));
+                }
+                ve.intoArray(le, 0);
+                vs.intoArray(ls, 0);
+                for (int j = 0; i < stop; i++, j++) {
+                    float dd = (w[i] - d[i]) * inv;
+                    float u = w[i] * inv;
+                    le[j] += dd * dd;
+                    ls[j] += u * u;
+                }
+                e += ((le[0] + le[1]) + (le[2] + le[3])) + ((le[4] + le[5]) + (le[6] + le[7]));
+                s += ((ls[0] + ls[1]) + (ls[2] + ls[3])) + ((ls[4] + ls[5]) + (ls[6] + ls[7]));
             }
-            ve.intoArray(le, 0);
-            vs.intoArray(ls, 0);
-            for (int j = 0; i < stop; i++, j++) {
-                float dd = (w[i] - d[i]) * inv;
-                float u = w[i] * inv;
-                le[j] += dd * dd;
-                ls[j] += u * u;
+            double s2 = (double) sc * sc;
+            if (sqErr != null) {
+                sqErr[s0 + k] = e * s2;
             }
-            e += ((le[0] + le[1]) + (le[2] + le[3])) + ((le[4] + le[5]) + (le[6] + le[7]));
-            s += ((ls[0] + ls[1]) + (ls[2] + ls[3])) + ((ls[4] + ls[5]) + (ls[6] + ls[7]));
+            if (sqSignal != null) {
+                sqSignal[s0 + k] = s * s2;
+            }
         }
-        return new double[] {e, s};
     }
 
     private static final float MAGIC = 12582912f; // 1.5 * 2^23, as in Fused
@@ -69,7 +83,7 @@ final class VectorLanes {
     /**
      * {@code Fused.quantizeRows} with eight-lane vectors, the same bits as its plain loops. Each row takes one pass
      * that rounds, clamps, narrows and stores the codes, stores the dequantized values, adds the error and signal
-     * sums in the order of {@link #errorSums} and, on the side, takes the min/max of the next row, whose load from
+     * sums in the order of {@link #segmentSums} and, on the side, takes the min/max of the next row, whose load from
      * memory then overlaps this row's arithmetic (a minimum or maximum does not depend on the order of the values).
      * Only the first row has a pass of its own for its min/max. Returns the largest {@code |x|}.
      *

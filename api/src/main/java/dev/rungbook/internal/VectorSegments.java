@@ -104,37 +104,31 @@ final class VectorSegments {
      * {@code SegmentKernels.linear} over {@code count} segments of {@code m} values from {@code off}, segment
      * {@code k} with scale {@code scales[s0 + k]} and zero point {@code zeros[s0 + k]} (0 if {@code zeros} is null).
      * The integer code is read from the bits of {@code c + 1.5 * 2^23} (exact for {@code |c| < 2^22}), as Java 17's
-     * Vector API has no float-to-int conversion the JIT compiles.
+     * Vector API has no float-to-int conversion the JIT compiles. On the side, {@code nextAmax[k]} gets the largest
+     * magnitude of segment {@code k} of the next run (from {@code off + count * m}) for {@code k < nextCount}
+     * ({@code nextCount <= count}): the next run's first pass, while its values come into the cache.
      */
     static int linear(float[] w, int off, int count, int m, float[] scales, float[] zeros, int s0, int qmin,
-            int qmax, float[] deq, byte[] bytes, short[] shorts) {
+            int qmax, float[] deq, byte[] bytes, short[] shorts, int nextCount, float[] nextAmax) {
         int vend = m - m % AL;
-        float lo = qmin;
-        float hi = qmax;
         int redo = 0;
+        int next = count * m; // from a segment to the same segment of the next run
         for (int k = 0; k < count; k++) {
             int base = off + k * m;
             float sc = scales[s0 + k];
             float z = zeros == null ? 0f : zeros[s0 + k];
-            for (int j = 0; j < vend; j += AL) {
-                int i = base + j;
-                FloatVector t = FloatVector.fromArray(A, w, i).div(sc);
-                FloatVector r = t.add(MAGIC).sub(MAGIC);
-                // a half-integer quotient (or one beyond 2^22, or infinite): the definition decides, in double
-                // (d * d is below 0.25 exactly when |d| < 0.5: no float square of |d| <= 0.5 - 2^-25 rounds up to it)
-                FloatVector d = t.sub(r);
-                VectorMask<Float> tie = d.mul(d).compare(VectorOperators.LT, 0.25f).not();
-                FloatVector c = r.add(z).min(hi).max(lo);
-                IntVector ci = ((IntVector) c.add(MAGIC).reinterpretShape(AI, 0)).sub(MAGIC_BITS);
-                if (bytes != null) {
-                    ((ByteVector) ci.convertShape(VectorOperators.I2B, AB, 0)).intoArray(bytes, i);
-                } else {
-                    ((ShortVector) ci.convertShape(VectorOperators.I2S, AS, 0)).intoArray(shorts, i);
+            // two loops rather than a test in one: a vector that lives across a branch is boxed by the JIT
+            if (k < nextCount) {
+                IntVector mx = IntVector.zero(AI);
+                for (int j = 0; j < vend; j += AL) {
+                    mx = mx.max(magnitudeBits(w, base + next + j));
+                    redo += linearLanes(w, base + j, sc, z, qmin, qmax, deq, bytes, shorts);
                 }
-                c.sub(z).mul(sc).intoArray(deq, i);
-                if (tie.anyTrue()) {
-                    // the plain kernel on these lanes: it redoes the same ties in double
-                    redo += SegmentKernels.linear(w, i, AL, sc, z, qmin, qmax, deq, bytes, shorts);
+                nextAmax[k] = maxAbsFinish(w, mx.reduceLanes(VectorOperators.MAX), base + next + vend,
+                        base + next + m);
+            } else {
+                for (int j = 0; j < vend; j += AL) {
+                    redo += linearLanes(w, base + j, sc, z, qmin, qmax, deq, bytes, shorts);
                 }
             }
             if (vend < m) {
@@ -144,6 +138,44 @@ final class VectorSegments {
         return redo;
     }
 
+    /** Eight lanes of {@link #linear} from {@code i}; returns the number of lanes redone in double. */
+    private static int linearLanes(float[] w, int i, float sc, float z, int qmin, int qmax, float[] deq, byte[] bytes,
+            short[] shorts) {
+        FloatVector t = FloatVector.fromArray(A, w, i).div(sc);
+        FloatVector r = t.add(MAGIC).sub(MAGIC);
+        // a half-integer quotient (or one beyond 2^22, or infinite): the definition decides, in double
+        // (d * d is below 0.25 exactly when |d| < 0.5: no float square of |d| <= 0.5 - 2^-25 rounds up to it)
+        FloatVector d = t.sub(r);
+        VectorMask<Float> tie = d.mul(d).compare(VectorOperators.LT, 0.25f).not();
+        FloatVector c = r.add(z).min((float) qmax).max((float) qmin);
+        IntVector ci = ((IntVector) c.add(MAGIC).reinterpretShape(AI, 0)).sub(MAGIC_BITS);
+        if (bytes != null) {
+            ((ByteVector) ci.convertShape(VectorOperators.I2B, AB, 0)).intoArray(bytes, i);
+        } else {
+            ((ShortVector) ci.convertShape(VectorOperators.I2S, AS, 0)).intoArray(shorts, i);
+        }
+        c.sub(z).mul(sc).intoArray(deq, i);
+        if (tie.anyTrue()) {
+            // the plain kernel on these lanes: it redoes the same ties in double
+            return SegmentKernels.linear(w, i, AL, sc, z, qmin, qmax, deq, bytes, shorts);
+        }
+        return 0;
+    }
+
+    /** The magnitudes of eight floats from {@code i} as their bit patterns (which order as the magnitudes). */
+    private static IntVector magnitudeBits(float[] w, int i) {
+        return ((IntVector) FloatVector.fromArray(A, w, i).reinterpretShape(AI, 0)).and(0x7FFFFFFF);
+    }
+
+    /** The largest magnitude of {@code bits} (a magnitude's bit pattern) and of {@code w[from, to)}, as a float. */
+    private static float maxAbsFinish(float[] w, int bits, int from, int to) {
+        int b = bits;
+        for (int i = from; i < to; i++) {
+            b = Math.max(b, Float.floatToRawIntBits(w[i]) & 0x7FFFFFFF);
+        }
+        return Float.intBitsToFloat(b);
+    }
+
     /**
      * {@code SegmentKernels.levels} over {@code count} segments of {@code m} values from {@code off}, segment
      * {@code k} with scale {@code scales[s0 + k]}.
@@ -151,43 +183,62 @@ final class VectorSegments {
      * <p>The float quotient {@code y} picks a bucket {@code rint((y + 1) * B)} ({@code B = Levels.VECTOR_BUCKETS},
      * rounded through {@code + 1.5 * 2^23} as above; monotone in {@code y}), and two gathers read the bucket's code
      * and level from the table's vector buckets; a bucket that holds a midpoint's float neighbour has code -1, and its
-     * lanes are counted as the definition says, in double.
+     * lanes are counted as the definition says, in double. {@code nextCount} and {@code nextAmax} as for
+     * {@link #linear}.
      */
     static int levels(float[] w, int off, int count, int m, float[] scales, int s0, SegmentKernels.Levels table,
-            float[] deq, byte[] bytes) {
-        int[] codes = table.vectorCodes;
-        float[] values = table.vectorLevels;
-        float nb = SegmentKernels.Levels.VECTOR_BUCKETS;
+            float[] deq, byte[] bytes, int nextCount, float[] nextAmax) {
         int[] idx = new int[AL];
         float[] scratch = new float[AL];
         int vend = m - m % AL;
         int redo = 0;
+        int next = count * m;
         for (int k = 0; k < count; k++) {
             int base = off + k * m;
             float sc = scales[s0 + k];
-            for (int j = 0; j < vend; j += AL) {
-                int i = base + j;
-                FloatVector y = FloatVector.fromArray(A, w, i).div(sc);
-                ((IntVector) y.add(1f).mul(nb).add(MAGIC).reinterpretShape(AI, 0)).sub(MAGIC_BITS).intoArray(idx, 0);
-                IntVector c = IntVector.fromArray(AI, codes, 0, idx, 0);
-                FloatVector v = FloatVector.fromArray(A, values, 0, idx, 0);
-                ((ByteVector) c.convertShape(VectorOperators.I2B, AB, 0)).intoArray(bytes, i);
-                v.mul(sc).intoArray(deq, i);
-                if (c.compare(VectorOperators.LT, 0).anyTrue()) {
-                    // the lanes of a bucket with a midpoint's neighbour: the definition, in double
-                    c.intoArray(idx, 0);
-                    for (int l = 0; l < AL; l++) {
-                        if (idx[l] < 0) {
-                            int code = SegmentKernels.count(table.mids, w[i + l] / (double) sc);
-                            bytes[i + l] = (byte) code;
-                            deq[i + l] = sc * table.levels[code];
-                            redo++;
-                        }
-                    }
+            // two loops rather than a test in one, as in linear
+            if (k < nextCount) {
+                IntVector mx = IntVector.zero(AI);
+                for (int j = 0; j < vend; j += AL) {
+                    mx = mx.max(magnitudeBits(w, base + next + j));
+                    redo += levelLanes(w, base + j, sc, table, deq, bytes, idx);
+                }
+                nextAmax[k] = maxAbsFinish(w, mx.reduceLanes(VectorOperators.MAX), base + next + vend,
+                        base + next + m);
+            } else {
+                for (int j = 0; j < vend; j += AL) {
+                    redo += levelLanes(w, base + j, sc, table, deq, bytes, idx);
                 }
             }
             if (vend < m) {
                 redo += SegmentKernels.levels(w, base + vend, m - vend, sc, table, deq, bytes, scratch);
+            }
+        }
+        return redo;
+    }
+
+    /** Eight lanes of {@link #levels} from {@code i} ({@code idx}: scratch of eight); returns the lanes redone. */
+    private static int levelLanes(float[] w, int i, float sc, SegmentKernels.Levels table, float[] deq, byte[] bytes,
+            int[] idx) {
+        FloatVector y = FloatVector.fromArray(A, w, i).div(sc);
+        ((IntVector) y.add(1f).mul((float) SegmentKernels.Levels.VECTOR_BUCKETS).add(MAGIC).reinterpretShape(AI, 0))
+                .sub(MAGIC_BITS).intoArray(idx, 0);
+        IntVector c = IntVector.fromArray(AI, table.vectorCodes, 0, idx, 0);
+        FloatVector v = FloatVector.fromArray(A, table.vectorLevels, 0, idx, 0);
+        ((ByteVector) c.convertShape(VectorOperators.I2B, AB, 0)).intoArray(bytes, i);
+        v.mul(sc).intoArray(deq, i);
+        if (!c.compare(VectorOperators.LT, 0).anyTrue()) {
+            return 0;
+        }
+        // the lanes of a bucket with a midpoint's neighbour: the definition, in double
+        int redo = 0;
+        c.intoArray(idx, 0);
+        for (int l = 0; l < AL; l++) {
+            if (idx[l] < 0) {
+                int code = SegmentKernels.count(table.mids, w[i + l] / (double) sc);
+                bytes[i + l] = (byte) code;
+                deq[i + l] = sc * table.levels[code];
+                redo++;
             }
         }
         return redo;

@@ -5,6 +5,7 @@ import dev.rungbook.internal.Fused;
 import dev.rungbook.internal.Lanes;
 import dev.rungbook.internal.MxScale;
 import dev.rungbook.internal.Nf4;
+import dev.rungbook.internal.Scales;
 import dev.rungbook.internal.SegmentKernels;
 import dev.rungbook.internal.TensorAccess;
 import dev.rungbook.progress.Progress;
@@ -263,43 +264,6 @@ final class Engine {
         return Math.max((float) pow2Ceil(s), Float.MIN_VALUE);
     }
 
-    /**
-     * The float32 scale near {@code s} (within two ulps) for which {@code (float)(scale * top) == (float) target},
-     * if there is one, else {@code (float) s}: so that the value at the end of the range is reproduced exactly.
-     */
-    static float fitScale(double s, double target, double top) {
-        float f = (float) s;
-        float goal = (float) target;
-        // the candidates in the order f, up, down, up twice, down twice (no array: this runs once per segment)
-        float up = Math.nextUp(f);
-        float down = Math.nextDown(f);
-        float up2 = Math.nextUp(up);
-        float down2 = Math.nextDown(down);
-        if (fits(f, top, goal)) {
-            return f;
-        }
-        if (fits(up, top, goal)) {
-            return up;
-        }
-        if (fits(down, top, goal)) {
-            return down;
-        }
-        if (fits(up2, top, goal)) {
-            return up2;
-        }
-        if (fits(down2, top, goal)) {
-            return down2;
-        }
-        if (!(f > 0)) {
-            return Float.MIN_VALUE;
-        }
-        // never let the end of the range overflow float32 (ranges near Float.MAX_VALUE)
-        while (Float.isInfinite((float) (f * top)) && f > Float.MIN_VALUE) {
-            f = Math.nextDown(f);
-        }
-        return f;
-    }
-
     // ------------------------------------------------------------------ linear grids
 
     /** {scale, zero point} of a linear grid for a clipping range. */
@@ -316,7 +280,7 @@ final class Engine {
             // a mid-rise grid's cells cover [-a, a] (overload point a); otherwise the top level is a itself
             double s = q.midRise ? a / (qmax + 1.0) : a / qmax;
             float sf = q.pow2 ? pow2Scale(s) : q.midRise ? Math.max((float) s, Float.MIN_VALUE)
-                    : fitScale(s, a, qmax);
+                    : Scales.fit(s, a, qmax);
             return new float[] {sf, z};
         }
         double lo = Math.min(r.lo(), 0.0);
@@ -328,18 +292,14 @@ final class Engine {
         float sf = q.pow2 ? pow2Scale(s) : Math.max((float) s, Float.MIN_VALUE);
         double z = Math.max(qmin, Math.min(qmax, Math.rint(qmin - lo / sf)));
         if (!q.pow2) {
-            sf = hi > 0 ? fitScale(sf, hi, qmax - z) : fitScale(sf, lo, qmin - z);
+            sf = hi > 0 ? Scales.fit(sf, hi, qmax - z) : Scales.fit(sf, lo, qmin - z);
         }
         return new float[] {sf, (float) z + 0f}; // + 0f turns -0 into 0
     }
 
-    private static boolean fits(float c, double top, float goal) {
-        return c > 0 && (float) (c * top) == goal;
-    }
-
     /**
      * The scaled value {@code y = u + z} ({@code u = x / s}) with the float32 rounding of the scale taken out: a
-     * {@code y} within {@code |u| 2^-22} of an integer (two float32 ulps of {@code u}, the most {@link #fitScale}
+     * {@code y} within {@code |u| 2^-22} of an integer (two float32 ulps of {@code u}, the most {@link Scales#fit}
      * moves the scale) is that integer, so that a value on a level stays on it under directed rules (floor, ceil,
      * stochastic, custom). Round to nearest needs no such care.
      */
@@ -659,11 +619,23 @@ final class Engine {
         float[] hi = new float[run];
         float[] buf = null;
         int[] cbuf = null;
+        // A signed symmetric grid needs only max |x| of a segment (its range is [-a, a]): then each run's kernel
+        // takes the next run's magnitudes on the side (into hi), and the next run is read while this one is coded.
+        boolean magnitudes = q.symmetric && !q.unsigned;
+        if (magnitudes) {
+            SegmentKernels.maxAbs(data, seg.offset(0), run, m, hi);
+        }
         for (int s0 = 0; s0 < seg.count; s0 += run) {
             int len = Math.min(run, seg.count - s0);
             stepRun(s0, len);
             int off = seg.offset(s0); // contiguous: segment s0 + k starts at off + k * m
-            SegmentKernels.minMax(data, off, len, m, lo, hi);
+            if (magnitudes) {
+                for (int k = 0; k < len; k++) {
+                    lo[k] = -hi[k];
+                }
+            } else {
+                SegmentKernels.minMax(data, off, len, m, lo, hi);
+            }
             boolean usual = true;
             for (int k = 0; k < len; k++) {
                 if (!(lo[k] >= -Float.MAX_VALUE && hi[k] <= Float.MAX_VALUE)) {
@@ -674,9 +646,14 @@ final class Engine {
                 zps[s0 + k] = p[1];
                 usual &= usualScale(p[0]);
             }
+            int nextLen = magnitudes ? Math.max(0, Math.min(run, seg.count - s0 - len)) : 0;
             if (usual) {
-                SegmentKernels.linear(data, off, len, m, scales, zps, s0, qmin, qmax, deq, bytes, shorts);
+                SegmentKernels.linear(data, off, len, m, scales, zps, s0, qmin, qmax, deq, bytes, shorts, nextLen,
+                        hi);
                 continue;
+            }
+            if (nextLen > 0) {
+                SegmentKernels.maxAbs(data, off + len * m, nextLen, m, hi);
             }
             for (int k = 0; k < len; k++) {
                 int s = s0 + k;
@@ -706,8 +683,6 @@ final class Engine {
         return finish(deq, codes, scales, zps, null, linearOverhead());
     }
 
-    private static final SegmentKernels.Levels NF4_TABLE = SegmentKernels.Levels.of(Nf4.levels());
-
     private Quantized nf4Kernel() {
         path = "kernel";
         int m = seg.size;
@@ -715,14 +690,14 @@ final class Engine {
         float[] scales = new float[seg.count];
         byte[] bytes = new byte[n];
         float[] y = new float[Math.min(m, KERNEL_CHUNK)];
-        SegmentKernels.Levels table = NF4_TABLE;
+        SegmentKernels.Levels table = Nf4.table();
         int run = runLength();
         float[] amax = new float[run];
+        SegmentKernels.maxAbs(data, seg.offset(0), run, m, amax);
         for (int s0 = 0; s0 < seg.count; s0 += run) {
             int len = Math.min(run, seg.count - s0);
             stepRun(s0, len);
             int off = seg.offset(s0); // contiguous: segment s0 + k starts at off + k * m
-            SegmentKernels.maxAbs(data, off, len, m, amax);
             for (int k = 0; k < len; k++) {
                 float a = amax[k];
                 if (!(a <= Float.MAX_VALUE)) {
@@ -730,7 +705,9 @@ final class Engine {
                 }
                 scales[s0 + k] = q.pow2 ? levelScale(new Range(-a, a)) : (a > 0 ? a : 1f);
             }
-            SegmentKernels.levels(data, off, len, m, scales, s0, table, deq, bytes, y);
+            // the next run's largest magnitudes come on the side, into amax (read above)
+            int nextLen = Math.max(0, Math.min(run, seg.count - s0 - len));
+            SegmentKernels.levels(data, off, len, m, scales, s0, table, deq, bytes, y, nextLen, amax);
         }
         progress.finish(task);
         float[][] lv = new float[][] {Nf4.levels()};
@@ -793,7 +770,7 @@ final class Engine {
             return 1f;
         }
         double s = a / f.max();
-        return q.pow2 ? pow2Scale(s) : fitScale(s, a, f.max());
+        return q.pow2 ? pow2Scale(s) : Scales.fit(s, a, f.max());
     }
 
     private double floatSse(float[] v, int from, int to, Range r, int s) {

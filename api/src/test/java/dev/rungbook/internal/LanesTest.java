@@ -44,11 +44,30 @@ class LanesTest {
             assertEquals(Float.floatToRawIntBits(Lanes.scalarMaxAbs(v, from, to)),
                     Float.floatToRawIntBits(VectorLanes.maxAbs(v, from, to)), "max |v|, n " + n);
             float[] d = values(r, n + 7);
-            float inv = (float) Math.exp(r.nextDouble(-10, 10));
-            double[] ws = Fused.scalarErrorSums(v, d, from, to, inv);
-            double[] gs = VectorLanes.errorSums(v, d, from, to, inv);
-            assertArrayEquals(ws, gs, 0.0, "error sums, n " + n);
-            assertEquals(Double.doubleToRawLongBits(ws[0]), Double.doubleToRawLongBits(gs[0]));
+            // error sums of segments: one of n values, then segments of 1..n values filling [from, to)
+            for (int m : new int[] {n, 1 + n % 13, 1 + n % 70}) {
+                if (m == 0) {
+                    continue;
+                }
+                int count = n / m;
+                float[] scales = new float[count + 1];
+                for (int k = 0; k < scales.length; k++) {
+                    scales[k] = (float) Math.exp(r.nextDouble(-10, 10));
+                }
+                double[] we = new double[count + 1];
+                double[] wsig = new double[count + 1];
+                double[] ge = new double[count + 1];
+                double[] gsig = new double[count + 1];
+                Fused.scalarSegmentSums(v, d, from, count, m, scales, 1, we, wsig);
+                VectorLanes.segmentSums(v, d, from, count, m, scales, 1, ge, gsig);
+                assertArrayEquals(we, ge, 0.0, "error sums, n " + n + ", m " + m);
+                assertArrayEquals(wsig, gsig, 0.0, "signal sums, n " + n + ", m " + m);
+                for (int k = 1; k <= count; k++) {
+                    double[] one = Fused.scalarErrorSums(v, d, from + (k - 1) * m, from + k * m, 1f / scales[k]);
+                    assertEquals(Double.doubleToRawLongBits(one[0] * ((double) scales[k] * scales[k])),
+                            Double.doubleToRawLongBits(ge[k]), "segment " + k + " of n " + n);
+                }
+            }
         }
     }
 

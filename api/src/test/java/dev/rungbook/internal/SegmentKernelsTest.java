@@ -236,7 +236,7 @@ class SegmentKernelsTest {
             int qmin = unsigned ? 0 : -(1 << (bits - 1));
             int qmax = unsigned ? (1 << bits) - 1 : (1 << (bits - 1)) - 1;
             float base = (float) Math.exp(r.nextDouble(-30, 30));
-            float[] w = runValues(r, off + count * m + 4, base);
+            float[] w = runValues(r, off + 2 * count * m + 4, base); // the next run's values too
             float[] scales = new float[count + 2];
             float[] zeros = trial % 5 == 0 ? null : new float[count + 2];
             for (int k = 0; k < scales.length; k++) {
@@ -261,8 +261,12 @@ class SegmentKernelsTest {
             short[] sh = small ? null : new short[w.length];
             short[] vsh = small ? null : new short[w.length];
             int want = SegmentKernels.scalarLinear(w, off, count, m, scales, zeros, s0, qmin, qmax, deq, b, sh);
-            int got = VectorSegments.linear(w, off, count, m, scales, zeros, s0, qmin, qmax, vdeq, vb, vsh);
+            int nextCount = r.nextInt(count + 1);
+            float[] ahead = new float[count];
+            int got = VectorSegments.linear(w, off, count, m, scales, zeros, s0, qmin, qmax, vdeq, vb, vsh, nextCount,
+                    ahead);
             redone += got;
+            assertAheadIsMaxAbs(w, off + count * m, nextCount, m, ahead, "trial " + trial);
             for (int i = off; i < off + count * m; i++) {
                 int k = (i - off) / m;
                 String at = "trial " + trial + " x " + w[i] + " scale " + scales[s0 + k];
@@ -292,6 +296,21 @@ class SegmentKernelsTest {
         assertTrue(redone > 1000, "ties were met and redone: " + redone);
     }
 
+    /** The largest magnitudes a run kernel took of the next run on the side equal the plain {@code maxAbs}'s. */
+    private static void assertAheadIsMaxAbs(float[] w, int from, int count, int m, float[] got, String at) {
+        float[] want = new float[Math.max(1, count)];
+        SegmentKernels.scalarMaxAbs(w, from, count, m, want);
+        for (int k = 0; k < count; k++) {
+            // Source: the definition, max |x| over the segment, computed in double
+            double a = 0;
+            for (int i = from + k * m; i < from + (k + 1) * m; i++) {
+                a = Math.max(a, Math.abs((double) w[i]));
+            }
+            assertEquals(a, want[k], at + ", next segment " + k);
+            assertEquals(Float.floatToRawIntBits(want[k]), Float.floatToRawIntBits(got[k]), at + ", next segment " + k);
+        }
+    }
+
     @Test
     void runLevelKernelsEqualThePlainKernelBitForBit() {
         SplittableRandom r = new SplittableRandom(406);
@@ -303,7 +322,10 @@ class SegmentKernelsTest {
             int m = new int[] {1, 7, 8, 9, 16, 64, 100, 4096 + 24}[trial % 8];
             int count = 1 + r.nextInt(m > 200 ? 2 : 10);
             int off = r.nextInt(9);
-            float[] w = new float[off + count * m + 5];
+            float[] w = new float[off + 2 * count * m + 5];
+            for (int i = off + count * m; i < w.length; i++) { // the next run's values
+                w[i] = (float) (r.nextGaussian() * Math.exp(r.nextDouble(-80, 80)));
+            }
             float[] scales = new float[count + 3];
             int s0 = r.nextInt(3);
             for (int k = 0; k < scales.length; k++) {
@@ -327,7 +349,10 @@ class SegmentKernelsTest {
             byte[] b = new byte[w.length];
             byte[] vb = new byte[w.length];
             SegmentKernels.scalarLevels(w, off, count, m, scales, s0, table, deq, b, y);
-            redone += VectorSegments.levels(w, off, count, m, scales, s0, table, vdeq, vb);
+            int nextCount = r.nextInt(count + 1);
+            float[] ahead = new float[count];
+            redone += VectorSegments.levels(w, off, count, m, scales, s0, table, vdeq, vb, nextCount, ahead);
+            assertAheadIsMaxAbs(w, off + count * m, nextCount, m, ahead, "trial " + trial);
             for (int i = off; i < off + count * m; i++) {
                 float sc = scales[s0 + (i - off) / m];
                 // Source: the definition, the number of midpoints (in double) strictly below w / scale (in double):

@@ -444,7 +444,7 @@ class NumericHostilityTest {
                 float top = c == Case.NEAR_MAX ? Float.MAX_VALUE : 1e30f;
                 if (topIsExact(q)) {
                     // The scale is the float32 nearest max|x| / qmax for which fl(s * qmax) = max|x| if one exists
-                    // (Engine.fitScale); for Float.MAX_VALUE none may, and the top level is then one ulp below.
+                    // (Scales.fit); for Float.MAX_VALUE none may, and the top level is then one ulp below.
                     double tol = c == Case.NEAR_MAX ? Math.ulp(top) : 0;
                     assertEquals(top, y[c == Case.NEAR_MAX ? 1 : 0], tol, where + ": the top value is a level");
                     assertEquals(-top, y[c == Case.NEAR_MAX ? 2 : 1], tol, where + ": minus the top is a level");

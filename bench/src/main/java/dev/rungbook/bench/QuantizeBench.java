@@ -1,6 +1,7 @@
 package dev.rungbook.bench;
 
 import dev.rungbook.internal.Fused;
+import dev.rungbook.internal.FusedSegments;
 import dev.rungbook.quant.Quantized;
 import dev.rungbook.quant.Quantizer;
 import dev.rungbook.tensor.FloatFormat;
@@ -24,7 +25,9 @@ import org.openjdk.jmh.annotations.Warmup;
  * (the floor), the fused per-channel asymmetric int8 kernel (quantize + dequantize + squared-error and signal sums,
  * which give MSE and SQNR), the same through the public API ({@code apply} + {@code error().sqnrDb()}, which also
  * builds codes, scales and the full error report), per-group int4 and NF4 through the API, and the 16-level
- * codebook on 2^24 values. {@code bench/numpy/quantize_baseline.py} does the fused job in NumPy for the ratio.
+ * codebook on 2^24 values. {@code fusedPerGroupInt4} and {@code fusedNf4} do the fused job per group (int4, groups of
+ * 128; NF4, blocks of 64) with the library's per-group kernels and caller-owned outputs, as the int8 kernel does,
+ * with the same codes, scales and values as the API's specs. {@code bench/numpy/quantize_baseline.py} does the fused job in NumPy for the ratio.
  * The report's KL divergence is computed on first use, so {@code error().sqnrDb()} does not pay for its histograms;
  * {@code apiPerChannelInt8AllMetrics} asks for every metric. {@link QuantizeVectorBench} runs the same benchmarks in
  * a JVM with the Vector API module.
@@ -54,6 +57,9 @@ public class QuantizeBench {
     private float[] dequant;
     private double[] sqErr;
     private double[] sqSignal;
+    private float[] groupScales;
+    private double[] groupErr;
+    private double[] groupSignal;
 
     @Setup(Level.Trial)
     public void setUp() {
@@ -78,6 +84,9 @@ public class QuantizeBench {
         dequant = new float[w.length];
         sqErr = new double[N];
         sqSignal = new double[N];
+        groupScales = new float[N * N / NF4_BLOCK];
+        groupErr = new double[groupScales.length];
+        groupSignal = new double[groupScales.length];
     }
 
     /** Floor: one plain copy of the matrix. */
@@ -102,6 +111,44 @@ public class QuantizeBench {
         for (int r = 0; r < N; r++) {
             e += sqErr[r];
             s += sqSignal[r];
+        }
+        return 10 * Math.log10(s / e);
+    }
+
+    /** The fused job per group: symmetric int4, groups of 128 along each row ({@code INT4_G128}'s results). */
+    @Benchmark
+    public double fusedPerGroupInt4() {
+        return fusedGroupsSqnr(w, groupScales, codes, dequant, groupErr, groupSignal, false);
+    }
+
+    /** The fused job per NF4 block of 64 ({@code Quantizer.nf4()}'s results). */
+    @Benchmark
+    public double fusedNf4() {
+        return fusedGroupsSqnr(w, groupScales, codes, dequant, groupErr, groupSignal, true);
+    }
+
+    /** Values per NF4 block and per int4 group of the fused per-group cases. */
+    static final int NF4_BLOCK = 64;
+    static final int INT4_GROUP = 128;
+
+    /**
+     * The fused per-group kernel on {@code w} (NF4 blocks of {@value #NF4_BLOCK} or symmetric int4 groups of
+     * {@value #INT4_GROUP}); returns the SQNR. The group arrays hold at least {@code N * N / NF4_BLOCK} entries.
+     */
+    static double fusedGroupsSqnr(float[] w, float[] scales, byte[] codes, float[] dequant, double[] sqErr,
+            double[] sqSignal, boolean nf4) {
+        int m = nf4 ? NF4_BLOCK : INT4_GROUP;
+        int count = w.length / m;
+        if (nf4) {
+            FusedSegments.nf4(w, count, m, scales, codes, dequant, sqErr, sqSignal);
+        } else {
+            FusedSegments.linear(w, count, m, 4, scales, codes, dequant, sqErr, sqSignal);
+        }
+        double e = 0;
+        double s = 0;
+        for (int g = 0; g < count; g++) {
+            e += sqErr[g];
+            s += sqSignal[g];
         }
         return 10 * Math.log10(s / e);
     }

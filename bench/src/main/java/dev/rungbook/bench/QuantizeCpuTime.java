@@ -79,12 +79,18 @@ public final class QuantizeCpuTime {
         float[] dq = new float[w.length];
         double[] e = new double[n];
         double[] s = new double[n];
+        float[] gScales = new float[n * n / QuantizeBench.NF4_BLOCK];
+        double[] gErr = new double[gScales.length];
+        double[] gSig = new double[gScales.length];
         List<Case> cases = List.of(
                 new Case("plainCopy", () -> {
                     System.arraycopy(w, 0, copy, 0, w.length);
                     return copy[copy.length - 1];
                 }),
                 new Case("fusedPerChannelInt8", () -> QuantizeBench.fusedSqnr(w, scales, zps, codes, dq, e, s)),
+                new Case("fusedPerGroupInt4",
+                        () -> QuantizeBench.fusedGroupsSqnr(w, gScales, codes, dq, gErr, gSig, false)),
+                new Case("fusedNf4", () -> QuantizeBench.fusedGroupsSqnr(w, gScales, codes, dq, gErr, gSig, true)),
                 new Case("apiPerChannelInt8",
                         () -> Quantizer.linear(8).asymmetric().perChannel(0).apply(matrix).error().sqnrDb()),
                 new Case("apiPerChannelInt8AllMetrics",
