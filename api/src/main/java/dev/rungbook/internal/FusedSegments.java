@@ -43,22 +43,10 @@ public final class FusedSegments {
         Checks.inRange(bits, 2, 8, "bits for byte codes");
         checkSizes(w, count, m, scalesOut, codesOut, dequantOut, sqErrOut, sqSignalOut);
         int qmax = (1 << (bits - 1)) - 1;
-        int run = Math.max(1, Math.min(count, RUN_VALUES / m));
-        float[] amax = new float[run];
-        SegmentKernels.maxAbs(w, 0, run, m, amax);
-        for (int s0 = 0; s0 < count; s0 += run) {
-            int len = Math.min(run, count - s0);
-            int off = s0 * m;
-            for (int k = 0; k < len; k++) {
-                float a = finite(w, amax[k], s0 + k, m);
-                scalesOut[s0 + k] = a > 0 ? Scales.fit((double) a / qmax, a, qmax) : 1f;
-            }
-            // the next run's largest magnitudes come on the side, into amax (read above)
-            int nextLen = Math.max(0, Math.min(run, count - s0 - len));
-            SegmentKernels.linear(w, off, len, m, scalesOut, null, s0, -qmax - 1, qmax, dequantOut, codesOut, null,
-                    nextLen, amax);
-            sums(w, dequantOut, s0, len, m, scalesOut, sqErrOut, sqSignalOut);
-        }
+        runs(w, count, m, scalesOut, dequantOut, sqErrOut, sqSignalOut,
+                a -> a > 0 ? Scales.fit((double) a / qmax, a, qmax) : 1f,
+                (off, len, s0, nextLen, amax) -> SegmentKernels.linear(w, off, len, m, scalesOut, null, s0, -qmax - 1,
+                        qmax, dequantOut, codesOut, null, nextLen, amax));
     }
 
     /**
@@ -78,20 +66,41 @@ public final class FusedSegments {
             double[] sqErrOut, double[] sqSignalOut) {
         checkSizes(w, count, m, scalesOut, codesOut, dequantOut, sqErrOut, sqSignalOut);
         SegmentKernels.Levels table = Nf4.table();
+        float[] scratch = new float[Math.min(m, 4096)];
+        runs(w, count, m, scalesOut, dequantOut, sqErrOut, sqSignalOut, a -> a > 0 ? a : 1f,
+                (off, len, s0, nextLen, amax) -> SegmentKernels.levels(w, off, len, m, scalesOut, s0, table,
+                        dequantOut, codesOut, scratch, nextLen, amax));
+    }
+
+    /** A segment's scale from its largest magnitude (finite, at least 0). */
+    private interface ScaleRule {
+        float of(float amax);
+    }
+
+    /**
+     * A run kernel: codes and values of the {@code len} segments from {@code off} (segment {@code s0} first), the
+     * largest magnitudes of the next run's first {@code nextLen} segments into {@code amax}.
+     */
+    private interface RunKernel {
+        void code(int off, int len, int s0, int nextLen, float[] amax);
+    }
+
+    /** The runs of segments (see the class comment): scales, the run kernel, the error sums. */
+    private static void runs(float[] w, int count, int m, float[] scales, float[] deq, double[] sqErr,
+            double[] sqSignal, ScaleRule rule, RunKernel kernel) {
         int run = Math.max(1, Math.min(count, RUN_VALUES / m));
         float[] amax = new float[run];
-        float[] scratch = new float[Math.min(m, 4096)];
         SegmentKernels.maxAbs(w, 0, run, m, amax);
         for (int s0 = 0; s0 < count; s0 += run) {
             int len = Math.min(run, count - s0);
-            int off = s0 * m;
             for (int k = 0; k < len; k++) {
-                float a = finite(w, amax[k], s0 + k, m);
-                scalesOut[s0 + k] = a > 0 ? a : 1f;
+                scales[s0 + k] = rule.of(finite(w, amax[k], s0 + k, m));
             }
-            int nextLen = Math.max(0, Math.min(run, count - s0 - len));
-            SegmentKernels.levels(w, off, len, m, scalesOut, s0, table, dequantOut, codesOut, scratch, nextLen, amax);
-            sums(w, dequantOut, s0, len, m, scalesOut, sqErrOut, sqSignalOut);
+            // the next run's largest magnitudes come on the side, into amax (read above)
+            kernel.code(s0 * m, len, s0, Math.max(0, Math.min(run, count - s0 - len)), amax);
+            if (sqErr != null || sqSignal != null) {
+                Fused.segmentSums(w, deq, s0 * m, len, m, scales, s0, sqErr, sqSignal);
+            }
         }
     }
 
@@ -107,14 +116,6 @@ public final class FusedSegments {
             }
         }
         throw new IllegalStateException("segment " + s + " has a non-finite maximum but only finite values");
-    }
-
-    /** The error and signal sums of segments {@code s0 .. s0 + len - 1} (see the class comment). */
-    private static void sums(float[] w, float[] d, int s0, int len, int m, float[] scales, double[] sqErr,
-            double[] sqSignal) {
-        if (sqErr != null || sqSignal != null) {
-            Fused.segmentSums(w, d, s0 * m, len, m, scales, s0, sqErr, sqSignal);
-        }
     }
 
     private static void checkSizes(float[] w, int count, int m, float[] scales, byte[] codes, float[] dequant,

@@ -407,12 +407,12 @@ public final class SegmentKernels {
         final int[] vectorCodes;
         final float[] vectorLevels;
 
-        private Levels(float[] levels) {
+        private Levels(float[] levels, double[] decisions) {
             this.levels = levels.clone();
             int k = levels.length;
             mids = new double[k - 1];
             for (int j = 0; j < k - 1; j++) {
-                mids[j] = ((double) levels[j] + levels[j + 1]) / 2;
+                mids[j] = decisions != null ? decisions[j] : ((double) levels[j] + levels[j + 1]) / 2;
             }
             codes = new byte[2 * BUCKETS + 1];
             for (int b = 0; b < codes.length; b++) {
@@ -466,7 +466,25 @@ public final class SegmentKernels {
                 Checks.require(Math.abs(levels[j]) <= 1f && (j == 0 || levels[j] > levels[j - 1]),
                         "levels must ascend within [-1, 1]");
             }
-            return new Levels(levels);
+            return new Levels(levels, null);
+        }
+
+        /**
+         * A table whose decision points are {@code mids} (ascending doubles within [-1, 1], {@code levels.length - 1}
+         * of them) rather than the midpoints of the float levels: a value's code is the number of {@code mids}
+         * strictly below it, its value that code's level.
+         *
+         * @throws IllegalArgumentException for levels as {@link #of(float[])} refuses, or mids out of order or range
+         */
+        public static Levels of(float[] levels, double[] mids) {
+            of(levels); // checks the levels
+            Checks.require(mids.length == levels.length - 1, "%d levels need %d decision points, got %d",
+                    levels.length, levels.length - 1, mids.length);
+            for (int j = 0; j < mids.length; j++) {
+                Checks.require(Math.abs(mids[j]) <= 1 && (j == 0 || mids[j] >= mids[j - 1]),
+                        "decision points must ascend within [-1, 1]");
+            }
+            return new Levels(levels, mids);
         }
     }
 

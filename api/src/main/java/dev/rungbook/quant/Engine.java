@@ -959,6 +959,9 @@ final class Engine {
                 lf[j] = (float) lv[j];
             }
             levels[s] = lf;
+            if (codebookKernel(buf, m, lf, th, cbuf, out)) {
+                return;
+            }
             for (int i = 0; i < m; i++) {
                 int c = countBelow(search, buf[i]);
                 cbuf[i] = c;
@@ -966,6 +969,45 @@ final class Engine {
             }
         });
         return finish(deq, codes, scales, null, levels, 32L * k * seg.count);
+    }
+
+    /**
+     * The codebook's codes (the number of decision points strictly below each value) and values through the NF4
+     * level kernel: with a power-of-two scale {@code p >= max |x|}, {@code x / p}, the decision points over
+     * {@code p} and the levels over {@code p} are exact, so counting the scaled points below the scaled value is the
+     * same count, and {@code p * (level / p)} is the level. Returns false, doing nothing, where that does not hold
+     * (more than 128 levels, levels that collide as floats, a scaled level that would lose bits) or the kernels are off.
+     */
+    private boolean codebookKernel(float[] v, int m, float[] lf, double[] th, int[] cbuf, float[] out) {
+        if (!kernels || lf.length > 128) {
+            return false;
+        }
+        float p = (float) pow2Ceil(Math.max(Lanes.maxAbs(v, 0, m), Float.MIN_NORMAL));
+        if (!(p < Float.POSITIVE_INFINITY)) {
+            return false;
+        }
+        float[] scaled = new float[lf.length];
+        for (int j = 0; j < lf.length; j++) {
+            scaled[j] = lf[j] / p;
+            if (scaled[j] * p != lf[j] || !(Math.abs(scaled[j]) <= 1f) || (j > 0 && !(scaled[j] > scaled[j - 1]))) {
+                return false;
+            }
+        }
+        double[] mids = new double[th.length];
+        for (int j = 0; j < th.length; j++) {
+            mids[j] = th[j] / p;
+            if (!(Math.abs(mids[j]) <= 1) || (j > 0 && !(mids[j] >= mids[j - 1]))) {
+                return false;
+            }
+        }
+        byte[] b = new byte[m];
+        SegmentKernels.levels(v, 0, 1, m, new float[] {p}, 0, SegmentKernels.Levels.of(scaled, mids), out, b,
+                new float[Math.min(m, KERNEL_CHUNK)]);
+        for (int i = 0; i < m; i++) {
+            cbuf[i] = b[i];
+        }
+        path = "kernel";
+        return true;
     }
 
     /**

@@ -51,25 +51,46 @@ class FusedSegmentsTest {
         return s.doubleValue();
     }
 
-    private static void assertSums(float[] w, float[] dq, int count, int m, double[] se, double[] ss) {
-        for (int s = 0; s < count; s++) {
-            // Source: BigDecimal arithmetic on the same floats (exact); the kernel's float partial sums stay within
-            // about 1e-5 relative (Fused's class comment)
-            double e = exactSquares(w, dq, s * m, (s + 1) * m);
-            double x = exactSquares(w, null, s * m, (s + 1) * m);
-            assertEquals(e, se[s], 1e-5 * e + Double.MIN_VALUE, "error sum of segment " + s);
-            assertEquals(x, ss[s], 1e-5 * x + Double.MIN_VALUE, "signal sum of segment " + s);
-        }
-    }
+    /** One kernel call's outputs for {@code w} in segments of {@code m}. */
+    private static final class Out {
+        final float[] w;
+        final int m;
+        final int count;
+        final float[] scales;
+        final byte[] codes;
+        final float[] dq;
+        final double[] se;
+        final double[] ss;
 
-    private static void assertSameAsApi(Quantized api, float[] scales, byte[] codes, float[] dq) {
-        for (int s = 0; s < scales.length; s++) {
-            assertEquals(api.scales().getFlat(s), scales[s], "scale " + s);
+        Out(float[] w, int m) {
+            this.w = w;
+            this.m = m;
+            count = w.length / m;
+            scales = new float[count];
+            codes = new byte[w.length];
+            dq = new float[w.length];
+            se = new double[count];
+            ss = new double[count];
         }
-        for (int i = 0; i < codes.length; i++) {
-            assertEquals(api.codes().get(i), codes[i], "code " + i);
-            assertEquals(Float.floatToRawIntBits(api.dequantized().getFlat(i)), Float.floatToRawIntBits(dq[i]),
-                    "dequantized value " + i);
+
+        /** Codes, scales and values equal the API's bit for bit; the sums equal exact sums of the same values. */
+        void assertSameAsApiAndExact(Quantized api) {
+            for (int s = 0; s < count; s++) {
+                assertEquals(api.scales().getFlat(s), scales[s], "scale " + s);
+            }
+            for (int i = 0; i < codes.length; i++) {
+                assertEquals(api.codes().get(i), codes[i], "code " + i);
+                assertEquals(Float.floatToRawIntBits(api.dequantized().getFlat(i)), Float.floatToRawIntBits(dq[i]),
+                        "dequantized value " + i);
+            }
+            for (int s = 0; s < count; s++) {
+                // Source: BigDecimal arithmetic on the same floats (exact); the kernel's float partial sums stay
+                // within about 1e-5 relative (Fused's class comment)
+                double e = exactSquares(w, dq, s * m, (s + 1) * m);
+                double x = exactSquares(w, null, s * m, (s + 1) * m);
+                assertEquals(e, se[s], 1e-5 * e + Double.MIN_VALUE, "error sum of segment " + s);
+                assertEquals(x, ss[s], 1e-5 * x + Double.MIN_VALUE, "signal sum of segment " + s);
+            }
         }
     }
 
@@ -78,17 +99,10 @@ class FusedSegmentsTest {
         for (int bits : new int[] {2, 3, 4, 8}) {
             for (int m : new int[] {16, 128, 48}) {
                 float[] w = matrix(11L * bits + m);
-                int count = w.length / m;
-                float[] scales = new float[count];
-                byte[] codes = new byte[w.length];
-                float[] dq = new float[w.length];
-                double[] se = new double[count];
-                double[] ss = new double[count];
-                FusedSegments.linear(w, count, m, bits, scales, codes, dq, se, ss);
-                int groupsPerRow = COLS / m;
-                Tensor t = groupsPerRow * m == COLS ? Tensor.of(w, ROWS, COLS) : Tensor.of(w, count, m);
-                assertSameAsApi(Quantizer.linear(bits).perGroup(1, m).apply(t), scales, codes, dq);
-                assertSums(w, dq, count, m, se, ss);
+                Out o = new Out(w, m);
+                FusedSegments.linear(w, o.count, m, bits, o.scales, o.codes, o.dq, o.se, o.ss);
+                Tensor t = COLS % m == 0 ? Tensor.of(w, ROWS, COLS) : Tensor.of(w, o.count, m);
+                o.assertSameAsApiAndExact(Quantizer.linear(bits).perGroup(1, m).apply(t));
             }
         }
     }
@@ -97,15 +111,9 @@ class FusedSegmentsTest {
     void nf4BlocksGiveTheApisResultsAndExactSums() {
         for (int m : new int[] {64, 32, 256}) {
             float[] w = matrix(29L + m);
-            int count = w.length / m;
-            float[] scales = new float[count];
-            byte[] codes = new byte[w.length];
-            float[] dq = new float[w.length];
-            double[] se = new double[count];
-            double[] ss = new double[count];
-            FusedSegments.nf4(w, count, m, scales, codes, dq, se, ss);
-            assertSameAsApi(Quantizer.nf4().blockSize(m).apply(Tensor.of(w, ROWS, COLS)), scales, codes, dq);
-            assertSums(w, dq, count, m, se, ss);
+            Out o = new Out(w, m);
+            FusedSegments.nf4(w, o.count, m, o.scales, o.codes, o.dq, o.se, o.ss);
+            o.assertSameAsApiAndExact(Quantizer.nf4().blockSize(m).apply(Tensor.of(w, ROWS, COLS)));
         }
     }
 

@@ -271,6 +271,34 @@ class SegmentKernelsTest {
     }
 
     @Test
+    void codebookThroughTheLevelKernelEqualsTheGeneralPathBitForBit() {
+        SplittableRandom r = new SplittableRandom(308);
+        for (int trial = 0; trial < 3; trial++) {
+            Tensor rows = tensor(r, 512, 8, 512);
+            Tensor whole = tensor(r, 3000, 6000);
+            float[] g = new float[20000];
+            for (int i = 0; i < g.length; i++) {
+                g[i] = (float) (Math.exp(r.nextDouble(-20, 20)) * r.nextGaussian());
+            }
+            Tensor gauss = Tensor.of(g, 100, 200).withName("g");
+            for (int k : new int[] {2, 3, 16, 128}) {
+                Quantizer q = Quantizer.codebook(k);
+                assertSameResults(q, whole);
+                assertSameResults(q, gauss);
+                assertSameResults(q.perChannel(0), rows);
+                assertSameResults(q.perChannel(0), gauss);
+            }
+        }
+        float[] g = new float[4096];
+        SplittableRandom s = new SplittableRandom(309);
+        for (int i = 0; i < g.length; i++) {
+            g[i] = (float) s.nextGaussian();
+        }
+        assertEquals("kernel", path(Quantizer.codebook(16), Tensor.of(g, g.length)), "the codebook's kernel ran");
+        assertEquals("general", path(Quantizer.codebook(200), Tensor.of(g, g.length)), "too many levels for it");
+    }
+
+    @Test
     void floatKernelsEqualTheGeneralPathBitForBit() {
         SplittableRandom r = new SplittableRandom(303);
         for (int k = 0; k < 3; k++) {

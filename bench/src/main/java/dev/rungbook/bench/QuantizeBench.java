@@ -106,11 +106,16 @@ public class QuantizeBench {
     static double fusedSqnr(float[] w, float[] scales, int[] zeroPoints, byte[] codes, float[] dequant,
             double[] sqErr, double[] sqSignal) {
         Fused.quantizeRows(w, N, N, 8, false, scales, zeroPoints, codes, dequant, sqErr, sqSignal);
+        return sqnr(sqErr, sqSignal, N);
+    }
+
+    /** SQNR in dB from the first {@code count} error and signal sums. */
+    private static double sqnr(double[] sqErr, double[] sqSignal, int count) {
         double e = 0;
         double s = 0;
-        for (int r = 0; r < N; r++) {
-            e += sqErr[r];
-            s += sqSignal[r];
+        for (int i = 0; i < count; i++) {
+            e += sqErr[i];
+            s += sqSignal[i];
         }
         return 10 * Math.log10(s / e);
     }
@@ -144,13 +149,7 @@ public class QuantizeBench {
         } else {
             FusedSegments.linear(w, count, m, 4, scales, codes, dequant, sqErr, sqSignal);
         }
-        double e = 0;
-        double s = 0;
-        for (int g = 0; g < count; g++) {
-            e += sqErr[g];
-            s += sqSignal[g];
-        }
-        return 10 * Math.log10(s / e);
+        return sqnr(sqErr, sqSignal, count);
     }
 
     /** The public API for the same job (also builds the full error report: MAE, cosine, KL of histograms...). */
