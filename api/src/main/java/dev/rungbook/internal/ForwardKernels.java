@@ -1,7 +1,6 @@
 package dev.rungbook.internal;
 
 import java.lang.invoke.MethodHandle;
-import java.lang.invoke.MethodHandles;
 import java.lang.invoke.MethodType;
 
 /**
@@ -39,53 +38,40 @@ public final class ForwardKernels {
     private static final int INT_LANES;
 
     static {
-        MethodHandle fp = null;
-        MethodHandle ip = null;
-        MethodHandle cp = null;
-        MethodHandle rq = null;
-        MethodHandle qb = null;
-        MethodHandle ic = null;
+        MethodHandle[] h = Lanes.vectorMethods("dev.rungbook.internal.VectorForward",
+                "floatPanel", MethodType.methodType(void.class, float[].class, int.class, int.class, float[].class,
+                        int.class, float[].class, int.class, int.class, int[].class, int.class),
+                "intPanel", MethodType.methodType(void.class, int[].class, int.class, int.class, int[].class,
+                        int.class, int[].class, int.class, int.class, int[].class, int.class),
+                "convPositions", MethodType.methodType(void.class, float[].class, int.class, int.class,
+                        float[].class, int.class, float[].class, float[].class, int.class),
+                "requantizeRows", MethodType.methodType(void.class, int[].class, int.class, int.class, int.class,
+                        long[].class, long.class, int.class, int.class, int.class, int.class),
+                "quantizeBlocks", MethodType.methodType(void.class, double[].class, int.class, double.class,
+                        double.class, int[].class, int.class),
+                "intLayerCodes", MethodType.methodType(void.class, int[].class, int.class, int.class, int[].class,
+                        int[].class, int.class, int[].class, int.class, long[].class, int.class, long.class,
+                        int.class, int.class, int.class, int.class),
+                "floatLanes", MethodType.methodType(int.class),
+                "intLanes", MethodType.methodType(int.class));
         int floatLanes = 8;
         int intLanes = 8;
-        Class<?> c = Lanes.vectorClass("dev.rungbook.internal.VectorForward");
-        if (c != null) {
+        if (h[0] != null) {
             try {
-                MethodHandles.Lookup l = MethodHandles.lookup();
-                fp = l.findStatic(c, "floatPanel", MethodType.methodType(void.class, float[].class, int.class,
-                        int.class, float[].class, int.class, float[].class, int.class, int.class, int[].class,
-                        int.class));
-                ip = l.findStatic(c, "intPanel", MethodType.methodType(void.class, int[].class, int.class, int.class,
-                        int[].class, int.class, int[].class, int.class, int.class, int[].class, int.class));
-                cp = l.findStatic(c, "convPositions", MethodType.methodType(void.class, float[].class, int.class,
-                        int.class, float[].class, int.class, float[].class, float[].class, int.class));
-                rq = l.findStatic(c, "requantizeRows", MethodType.methodType(void.class, int[].class, int.class,
-                        int.class, int.class, long[].class, long.class, int.class, int.class, int.class, int.class));
-                qb = l.findStatic(c, "quantizeBlocks", MethodType.methodType(void.class, double[].class, int.class,
-                        double.class, double.class, int[].class, int.class));
-                ic = l.findStatic(c, "intLayerCodes", MethodType.methodType(void.class, int[].class, int.class,
-                        int.class, int[].class, int[].class, int.class, int[].class, int.class, long[].class,
-                        int.class, long.class, int.class, int.class, int.class, int.class));
-                floatLanes = (int) l.findStatic(c, "floatLanes", MethodType.methodType(int.class)).invokeExact();
-                intLanes = (int) l.findStatic(c, "intLanes", MethodType.methodType(int.class)).invokeExact();
+                floatLanes = (int) h[6].invokeExact();
+                intLanes = (int) h[7].invokeExact();
             } catch (Throwable e) { // no usable Vector API: the plain loops
-                fp = null;
-                ip = null;
-                cp = null;
-                rq = null;
-                qb = null;
-                ic = null;
-                floatLanes = 8;
-                intLanes = 8;
+                java.util.Arrays.fill(h, null);
             }
         }
-        FLOAT_PANEL = fp;
-        INT_PANEL = ip;
-        CONV_POSITIONS = cp;
-        REQUANTIZE = rq;
-        QUANTIZE = qb;
-        INT_CODES = ic;
-        FLOAT_LANES = floatLanes;
-        INT_LANES = intLanes;
+        FLOAT_PANEL = h[0];
+        INT_PANEL = h[1];
+        CONV_POSITIONS = h[2];
+        REQUANTIZE = h[3];
+        QUANTIZE = h[4];
+        INT_CODES = h[5];
+        FLOAT_LANES = h[0] != null ? floatLanes : 8;
+        INT_LANES = h[0] != null ? intLanes : 8;
     }
 
     private ForwardKernels() {
@@ -118,16 +104,6 @@ public final class ForwardKernels {
     private static void checkInput(int n, int in, int length, String what) {
         Checks.require(n >= 0 && (long) n * in <= length, "%s: input [%d, %d] needs %d values, got %d", what, n, in,
                 (long) n * in, length);
-    }
-
-    private static RuntimeException unchecked(Throwable e) {
-        if (e instanceof RuntimeException) {
-            return (RuntimeException) e;
-        }
-        if (e instanceof Error) {
-            throw (Error) e;
-        }
-        return new IllegalStateException(e);
     }
 
     /** A float weight {@code [out, in]} and bias {@code [out]} packed into panels; immutable. */
@@ -213,7 +189,7 @@ public final class ForwardKernels {
                 try {
                     FLOAT_PANEL.invokeExact(x, n, in, w, j0 * in, b, j0, panelWidth(j0, out, FLOAT_LANES), bits, out);
                 } catch (Throwable e) {
-                    throw unchecked(e);
+                    throw Lanes.unchecked(e);
                 }
             }
             if (relu) {
@@ -294,7 +270,7 @@ public final class ForwardKernels {
                     try {
                         INT_PANEL.invokeExact(x, n, in, w, j0 * in, pi, j0, width, y, out);
                     } catch (Throwable e) {
-                        throw unchecked(e);
+                        throw Lanes.unchecked(e);
                     }
                 } else {
                     plainIntPanel(x, n, in, w, j0 * in, pi, j0, width, y, out);
@@ -343,7 +319,7 @@ public final class ForwardKernels {
                     INT_PANEL.invokeExact(x, n, in, w, j0 * in, pi, j0, panelWidth(j0, out, INT_LANES), y, out);
                 }
             } catch (Throwable e) {
-                throw unchecked(e);
+                throw Lanes.unchecked(e);
             }
             columns.applyPlain(y, n, done, zy, lo, qmax);
             return y;
@@ -383,7 +359,7 @@ public final class ForwardKernels {
                 try {
                     QUANTIZE.invokeExact(d, chunk, (double) zp, (double) qmax, q, b0);
                 } catch (Throwable e) {
-                    throw unchecked(e);
+                    throw Lanes.unchecked(e);
                 }
             }
             from = m;
@@ -528,7 +504,7 @@ public final class ForwardKernels {
                 try {
                     REQUANTIZE.invokeExact(y, n, out, cv, p, c1, s1, zy, lo, qmax);
                 } catch (Throwable e) {
-                    throw unchecked(e);
+                    throw Lanes.unchecked(e);
                 }
                 from = cv;
             }
@@ -570,7 +546,7 @@ public final class ForwardKernels {
         try {
             CONV_POSITIONS.invokeExact(w, out, k, col, p, b, y, yo);
         } catch (Throwable e) {
-            throw unchecked(e);
+            throw Lanes.unchecked(e);
         }
     }
 

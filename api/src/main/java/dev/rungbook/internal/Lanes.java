@@ -23,40 +23,21 @@ public final class Lanes {
     private static final MethodHandle PAIR_SUMS;
 
     static {
-        MethodHandle mm = null;
-        MethodHandle ma = null;
-        MethodHandle es = null;
-        MethodHandle qr = null;
-        MethodHandle ps = null;
-        Class<?> c = vectorClass("dev.rungbook.internal.VectorLanes");
-        if (c != null) {
-            try {
-                MethodHandles.Lookup l = MethodHandles.lookup();
-                mm = l.findStatic(c, "minMax", MethodType.methodType(float[].class, float[].class, int.class,
-                        int.class, float.class, float.class));
-                ma = l.findStatic(c, "maxAbs", MethodType.methodType(float.class, float[].class, int.class,
-                        int.class));
-                es = l.findStatic(c, "segmentSums", MethodType.methodType(void.class, float[].class,
-                        float[].class, int.class, int.class, int.class, float[].class, int.class, double[].class,
-                        double[].class));
-                qr = l.findStatic(c, "quantizeRows", MethodType.methodType(float.class, float[].class, int.class,
-                        int.class, int.class, boolean.class, float[].class, int[].class, byte[].class, short[].class,
-                        float[].class, double[].class, double[].class));
-                ps = l.findStatic(c, "pairSums", MethodType.methodType(double[].class, float[].class,
-                        float[].class));
-            } catch (ReflectiveOperationException | LinkageError e) {
-                mm = null;
-                ma = null;
-                es = null;
-                qr = null;
-                ps = null;
-            }
-        }
-        MIN_MAX = mm;
-        MAX_ABS = ma;
-        ERROR_SUMS = es;
-        QUANTIZE_ROWS = qr;
-        PAIR_SUMS = ps;
+        MethodHandle[] h = vectorMethods("dev.rungbook.internal.VectorLanes",
+                "minMax", MethodType.methodType(float[].class, float[].class, int.class, int.class, float.class,
+                        float.class),
+                "maxAbs", MethodType.methodType(float.class, float[].class, int.class, int.class),
+                "segmentSums", MethodType.methodType(void.class, float[].class, float[].class, int.class, int.class,
+                        int.class, float[].class, int.class, double[].class, double[].class),
+                "quantizeRows", MethodType.methodType(float.class, float[].class, int.class, int.class, int.class,
+                        boolean.class, float[].class, int[].class, byte[].class, short[].class, float[].class,
+                        double[].class, double[].class),
+                "pairSums", MethodType.methodType(double[].class, float[].class, float[].class));
+        MIN_MAX = h[0];
+        MAX_ABS = h[1];
+        ERROR_SUMS = h[2];
+        QUANTIZE_ROWS = h[3];
+        PAIR_SUMS = h[4];
     }
 
     private Lanes() {
@@ -79,8 +60,30 @@ public final class Lanes {
         }
     }
 
+    /**
+     * Handles on static methods of the Vector API kernel class {@code className} ({@link #vectorClass}), one per
+     * (name, {@link MethodType}) pair of {@code namesAndTypes}, in order. All or none: every entry is null when the
+     * class is not usable or any of the methods cannot be found (the callers then run their plain loops).
+     */
+    static MethodHandle[] vectorMethods(String className, Object... namesAndTypes) {
+        MethodHandle[] h = new MethodHandle[namesAndTypes.length / 2];
+        Class<?> c = vectorClass(className);
+        if (c == null) {
+            return h;
+        }
+        try {
+            MethodHandles.Lookup l = MethodHandles.lookup();
+            for (int i = 0; i < h.length; i++) {
+                h[i] = l.findStatic(c, (String) namesAndTypes[2 * i], (MethodType) namesAndTypes[2 * i + 1]);
+            }
+            return h;
+        } catch (ReflectiveOperationException | LinkageError e) {
+            return new MethodHandle[h.length];
+        }
+    }
+
     /** Rethrows what a vector method threw: unchecked throwables as they are (it declares no checked ones). */
-    private static RuntimeException unchecked(Throwable e) {
+    static RuntimeException unchecked(Throwable e) {
         if (e instanceof RuntimeException) {
             return (RuntimeException) e;
         }

@@ -1,7 +1,6 @@
 package dev.rungbook.internal;
 
 import java.lang.invoke.MethodHandle;
-import java.lang.invoke.MethodHandles;
 import java.lang.invoke.MethodType;
 
 /**
@@ -41,37 +40,29 @@ public final class SegmentKernels {
     private static final MethodHandle V_LEVELS;
 
     static {
-        MethodHandle mm = null;
-        MethodHandle ma = null;
-        MethodHandle li = null;
-        MethodHandle lv = null;
-        Class<?> c = Lanes.vectorClass("dev.rungbook.internal.VectorSegments");
-        if (c != null) {
+        MethodHandle[] h = Lanes.vectorMethods("dev.rungbook.internal.VectorSegments",
+                "minMax", MethodType.methodType(void.class, float[].class, int.class, int.class, int.class,
+                        float[].class, float[].class),
+                "maxAbs", MethodType.methodType(void.class, float[].class, int.class, int.class, int.class,
+                        float[].class),
+                "linear", MethodType.methodType(int.class, float[].class, int.class, int.class, int.class,
+                        float[].class, float[].class, int.class, int.class, int.class, float[].class, byte[].class,
+                        short[].class, int.class, float[].class),
+                "levels", MethodType.methodType(int.class, float[].class, int.class, int.class, int.class,
+                        float[].class, int.class, Levels.class, float[].class, byte[].class, int.class,
+                        float[].class),
+                "lanes", MethodType.methodType(int.class));
+        if (h[0] != null) {
             try {
-                MethodHandles.Lookup l = MethodHandles.lookup();
-                mm = l.findStatic(c, "minMax", MethodType.methodType(void.class, float[].class, int.class, int.class,
-                        int.class, float[].class, float[].class));
-                ma = l.findStatic(c, "maxAbs", MethodType.methodType(void.class, float[].class, int.class, int.class,
-                        int.class, float[].class));
-                li = l.findStatic(c, "linear", MethodType.methodType(int.class, float[].class, int.class, int.class,
-                        int.class, float[].class, float[].class, int.class, int.class, int.class, float[].class,
-                        byte[].class, short[].class, int.class, float[].class));
-                lv = l.findStatic(c, "levels", MethodType.methodType(int.class, float[].class, int.class, int.class,
-                        int.class, float[].class, int.class, Levels.class, float[].class, byte[].class, int.class,
-                        float[].class));
-                int lanes = (int) l.findStatic(c, "lanes", MethodType.methodType(int.class)).invokeExact();
-                Checks.require(lanes == 8, "8 lanes");
+                Checks.require((int) h[4].invokeExact() == 8, "8 lanes");
             } catch (Throwable e) { // no usable Vector API: the plain loops
-                mm = null;
-                ma = null;
-                li = null;
-                lv = null;
+                java.util.Arrays.fill(h, null);
             }
         }
-        V_MIN_MAX = mm;
-        V_MAX_ABS = ma;
-        V_LINEAR = li;
-        V_LEVELS = lv;
+        V_MIN_MAX = h[0];
+        V_MAX_ABS = h[1];
+        V_LINEAR = h[2];
+        V_LEVELS = h[3];
     }
 
     private SegmentKernels() {
@@ -80,17 +71,6 @@ public final class SegmentKernels {
     /** True when the run-of-segments kernels run on the Vector API ({@link VectorSegments}). */
     public static boolean vectorised() {
         return V_LINEAR != null;
-    }
-
-    /** Rethrows what a vector method threw: unchecked throwables as they are (it declares no checked ones). */
-    private static RuntimeException unchecked(Throwable e) {
-        if (e instanceof RuntimeException) {
-            return (RuntimeException) e;
-        }
-        if (e instanceof Error) {
-            throw (Error) e;
-        }
-        return new IllegalStateException(e);
     }
 
     // ------------------------------------------------------------------ runs of segments
@@ -112,7 +92,7 @@ public final class SegmentKernels {
                 V_MIN_MAX.invokeExact(w, off, count, m, lo, hi);
                 return;
             } catch (Throwable e) {
-                throw unchecked(e);
+                throw Lanes.unchecked(e);
             }
         }
         scalarMinMax(w, off, count, m, lo, hi);
@@ -184,7 +164,7 @@ public final class SegmentKernels {
                 V_MAX_ABS.invokeExact(w, off, count, m, amax);
                 return;
             } catch (Throwable e) {
-                throw unchecked(e);
+                throw Lanes.unchecked(e);
             }
         }
         scalarMaxAbs(w, off, count, m, amax);
@@ -243,7 +223,7 @@ public final class SegmentKernels {
                 return (int) V_LINEAR.invokeExact(w, off, count, m, scales, zeros, s0, qmin, qmax, deq, bytes,
                         shorts, nextCount, nextAmax);
             } catch (Throwable e) {
-                throw unchecked(e);
+                throw Lanes.unchecked(e);
             }
         }
         int redo = scalarLinear(w, off, count, m, scales, zeros, s0, qmin, qmax, deq, bytes, shorts);
@@ -294,7 +274,7 @@ public final class SegmentKernels {
                 return (int) V_LEVELS.invokeExact(w, off, count, m, scales, s0, table, deq, bytes, nextCount,
                         nextAmax);
             } catch (Throwable e) {
-                throw unchecked(e);
+                throw Lanes.unchecked(e);
             }
         }
         int redo = scalarLevels(w, off, count, m, scales, s0, table, deq, bytes, y);

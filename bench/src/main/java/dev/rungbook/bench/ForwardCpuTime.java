@@ -1,17 +1,11 @@
 package dev.rungbook.bench;
 
-import java.io.IOException;
 import java.lang.management.ManagementFactory;
 import java.lang.management.ThreadMXBean;
-import java.net.URL;
-import java.net.URLClassLoader;
-import java.nio.charset.StandardCharsets;
 import java.nio.file.Files;
 import java.nio.file.Path;
-import java.nio.file.StandardCopyOption;
 import java.util.ArrayList;
 import java.util.Arrays;
-import java.util.LinkedHashMap;
 import java.util.List;
 import java.util.Locale;
 import java.util.Map;
@@ -55,30 +49,6 @@ public final class ForwardCpuTime {
     private record Case(String name, long macs, DoubleSupplier body) {
     }
 
-    /** Loads {@code dev.rungbook} classes from its own URLs first, everything else from the parent. */
-    private static final class ChildFirst extends URLClassLoader {
-        ChildFirst(URL[] urls, ClassLoader parent) {
-            super(urls, parent);
-        }
-
-        @Override
-        protected Class<?> loadClass(String name, boolean resolve) throws ClassNotFoundException {
-            if (!name.startsWith("dev.rungbook.")) {
-                return super.loadClass(name, resolve);
-            }
-            synchronized (getClassLoadingLock(name)) {
-                Class<?> c = findLoadedClass(name);
-                if (c == null) {
-                    c = findClass(name);
-                }
-                if (resolve) {
-                    resolveClass(c);
-                }
-                return c;
-            }
-        }
-    }
-
     private static Path samples() {
         for (String p : new String[] {"sample-tensors", "../sample-tensors"}) {
             if (Files.isDirectory(Path.of(p))) {
@@ -86,18 +56,6 @@ public final class ForwardCpuTime {
             }
         }
         throw new IllegalStateException("sample-tensors not found from " + Path.of("").toAbsolutePath());
-    }
-
-    private static String load() {
-        try {
-            return Files.readString(Path.of("/proc/loadavg")).strip();
-        } catch (IOException e) {
-            return "n/a";
-        }
-    }
-
-    private static boolean vectorModule() {
-        return ModuleLayer.boot().findModule("jdk.incubator.vector").isPresent();
     }
 
     @SuppressWarnings("unchecked")
@@ -126,18 +84,13 @@ public final class ForwardCpuTime {
                 throw new IllegalArgumentException("unknown argument " + args[i]);
             }
         }
-        String loadStart = load();
+        String loadStart = CpuTimeRuns.loadAverage();
         Path samples = samples();
         List<Case> cases = new ArrayList<>();
         ForwardSubject now = new ForwardSubject(samples);
         addSubject(cases, now, now.macs(), "");
         if (before != null) {
-            if (!Files.isRegularFile(before)) {
-                throw new IllegalArgumentException("--before: no jar at " + before.toAbsolutePath());
-            }
-            URL bench = ForwardCpuTime.class.getProtectionDomain().getCodeSource().getLocation();
-            ClassLoader old = new ChildFirst(new URL[] {before.toUri().toURL(), bench},
-                    ForwardCpuTime.class.getClassLoader());
+            ClassLoader old = CpuTimeRuns.olderLibrary(before, ForwardCpuTime.class);
             Object subject = old.loadClass(ForwardSubject.class.getName()).getConstructor(Path.class)
                     .newInstance(samples);
             if (subject.getClass().getClassLoader() != old) {
@@ -175,7 +128,7 @@ public final class ForwardCpuTime {
             }
             return iy[7];
         }));
-        if (vectorModule()) {
+        if (CpuTimeRuns.vectorModule()) {
             cases.add(new Case("peakVectorFma", VectorPeaks.floatMacs(), () -> VectorPeaks.floatFma(fx, fm[0])));
             cases.add(new Case("peakVectorInt32MulAdd", VectorPeaks.intMacs(),
                     () -> VectorPeaks.intMulAdd(ix, im[0])));
@@ -211,7 +164,7 @@ public final class ForwardCpuTime {
                 }
             }
         }
-        String loadEnd = load();
+        String loadEnd = CpuTimeRuns.loadAverage();
         String env = String.valueOf(System.getenv("OPENBLAS_NUM_THREADS"));
         List<String> rows = new ArrayList<>();
         for (int c = 0; c < cases.size(); c++) {
@@ -228,13 +181,11 @@ public final class ForwardCpuTime {
                     + "\"scoreUnit\": \"ms/op\", \"min\": %.4f, \"wallMedian\": %.4f, \"repetitions\": %d}, "
                     + "\"macs\": %d, \"loadStart\": \"%s\", \"loadEnd\": \"%s\", \"vectorModule\": %b, "
                     + "\"openblasThreads\": \"%s\", \"linearAlgebra\": \"%s\", \"before\": \"%s\"}", k.name(), median,
-                    t[0], w[w.length / 2], reps, k.macs(), loadStart, loadEnd, vectorModule(), env,
+                    t[0], w[w.length / 2], reps, k.macs(), loadStart, loadEnd, CpuTimeRuns.vectorModule(), env,
                     la.backend(), before == null ? "" : before.getFileName()));
         }
         System.out.println("(checksum " + sink + "; load " + loadStart + " -> " + loadEnd + "; vector module "
-                + vectorModule() + "; OPENBLAS_NUM_THREADS=" + env + "; " + la.backend() + ")");
-        Path tmp = outFile.resolveSibling(outFile.getFileName() + ".tmp");
-        Files.writeString(tmp, "[\n" + String.join(",\n", rows) + "\n]\n", StandardCharsets.UTF_8);
-        Files.move(tmp, outFile, StandardCopyOption.REPLACE_EXISTING, StandardCopyOption.ATOMIC_MOVE);
+                + CpuTimeRuns.vectorModule() + "; OPENBLAS_NUM_THREADS=" + env + "; " + la.backend() + ")");
+        CpuTimeRuns.writeRows(outFile, rows);
     }
 }

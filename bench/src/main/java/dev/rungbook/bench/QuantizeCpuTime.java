@@ -5,8 +5,6 @@ import dev.rungbook.tensor.Tensor;
 import java.io.IOException;
 import java.lang.management.ManagementFactory;
 import java.lang.management.ThreadMXBean;
-import java.nio.charset.StandardCharsets;
-import java.nio.file.Files;
 import java.nio.file.Path;
 import java.util.ArrayList;
 import java.util.Arrays;
@@ -149,9 +147,9 @@ public final class QuantizeCpuTime {
                     all.get(c).name(), median, t[0], t[t.length - 1], reps));
         }
         System.out.println("(checksum " + sink + ", vector API reductions: " + vectorised() + ")");
-        write(Path.of(args[0]), rows);
+        CpuTimeRuns.writeRows(Path.of(args[0]), rows);
         if (before != null) {
-            write(before, generalRows);
+            CpuTimeRuns.writeRows(before, generalRows);
         }
     }
 
@@ -165,14 +163,5 @@ public final class QuantizeCpuTime {
             sum += q.apply(t).error().values()[0];
         }
         return sum;
-    }
-
-    /** Writes JSON rows atomically (a temporary file in the target folder, then a move over the target). */
-    private static void write(Path target, List<String> rows) throws IOException {
-        Path abs = target.toAbsolutePath();
-        Path tmp = Files.createTempFile(abs.getParent(), abs.getFileName().toString(), ".tmp");
-        Files.writeString(tmp, "[\n" + String.join(",\n", rows) + "\n]\n", StandardCharsets.UTF_8);
-        Files.move(tmp, abs, java.nio.file.StandardCopyOption.REPLACE_EXISTING,
-                java.nio.file.StandardCopyOption.ATOMIC_MOVE);
     }
 }

@@ -1,14 +1,8 @@
 package dev.rungbook.bench;
 
-import java.io.IOException;
 import java.lang.management.ManagementFactory;
 import java.lang.management.ThreadMXBean;
-import java.net.URL;
-import java.net.URLClassLoader;
-import java.nio.charset.StandardCharsets;
-import java.nio.file.Files;
 import java.nio.file.Path;
-import java.nio.file.StandardCopyOption;
 import java.util.ArrayList;
 import java.util.Arrays;
 import java.util.List;
@@ -38,42 +32,6 @@ public final class SegmentCpuTime {
     private record Case(String name, DoubleSupplier body) {
     }
 
-    /** Loads {@code dev.rungbook} classes from its own URLs first, everything else from the parent. */
-    private static final class ChildFirst extends URLClassLoader {
-        ChildFirst(URL[] urls, ClassLoader parent) {
-            super(urls, parent);
-        }
-
-        @Override
-        protected Class<?> loadClass(String name, boolean resolve) throws ClassNotFoundException {
-            if (!name.startsWith("dev.rungbook.")) {
-                return super.loadClass(name, resolve);
-            }
-            synchronized (getClassLoadingLock(name)) {
-                Class<?> c = findLoadedClass(name);
-                if (c == null) {
-                    c = findClass(name);
-                }
-                if (resolve) {
-                    resolveClass(c);
-                }
-                return c;
-            }
-        }
-    }
-
-    private static String load() {
-        try {
-            return Files.readString(Path.of("/proc/loadavg")).strip();
-        } catch (IOException e) {
-            return "n/a";
-        }
-    }
-
-    private static boolean vectorModule() {
-        return ModuleLayer.boot().findModule("jdk.incubator.vector").isPresent();
-    }
-
     @SuppressWarnings("unchecked")
     private static void add(List<Case> cases, Object subject, String suffix) throws ReflectiveOperationException {
         Function<String, DoubleSupplier> f = (Function<String, DoubleSupplier>) subject;
@@ -99,7 +57,7 @@ public final class SegmentCpuTime {
                 throw new IllegalArgumentException("unknown argument " + args[i]);
             }
         }
-        String loadStart = load();
+        String loadStart = CpuTimeRuns.loadAverage();
         List<Case> cases = new ArrayList<>();
         float[] src = new float[4096 * 4096];
         float[] copy = new float[src.length];
@@ -110,12 +68,7 @@ public final class SegmentCpuTime {
         }));
         add(cases, new SegmentSubject(), "");
         if (before != null) {
-            if (!Files.isRegularFile(before)) {
-                throw new IllegalArgumentException("--before: no jar at " + before.toAbsolutePath());
-            }
-            URL bench = SegmentCpuTime.class.getProtectionDomain().getCodeSource().getLocation();
-            ClassLoader old = new ChildFirst(new URL[] {before.toUri().toURL(), bench},
-                    SegmentCpuTime.class.getClassLoader());
+            ClassLoader old = CpuTimeRuns.olderLibrary(before, SegmentCpuTime.class);
             Object subject = old.loadClass(SegmentSubject.class.getName()).getConstructor().newInstance();
             if (subject.getClass().getClassLoader() != old) {
                 throw new IllegalStateException("the older library's subject was not loaded from " + before);
@@ -139,7 +92,7 @@ public final class SegmentCpuTime {
                 }
             }
         }
-        String loadEnd = load();
+        String loadEnd = CpuTimeRuns.loadAverage();
         List<String> rows = new ArrayList<>();
         for (int c = 0; c < cases.size(); c++) {
             double[] t = cpu[c].clone();
@@ -154,13 +107,11 @@ public final class SegmentCpuTime {
                     + "\"mode\": \"cpu-time median\", \"threads\": 1, \"primaryMetric\": {\"score\": %.3f, "
                     + "\"scoreUnit\": \"ms/op\", \"min\": %.3f, \"wallMedian\": %.3f, \"repetitions\": %d}, "
                     + "\"loadStart\": \"%s\", \"loadEnd\": \"%s\", \"vectorModule\": %b, \"before\": \"%s\"}",
-                    k.name(), median, t[0], w[w.length / 2], reps, loadStart, loadEnd, vectorModule(),
+                    k.name(), median, t[0], w[w.length / 2], reps, loadStart, loadEnd, CpuTimeRuns.vectorModule(),
                     before == null ? "" : before.getFileName()));
         }
         System.out.println("(checksum " + sink + "; load " + loadStart + " -> " + loadEnd + "; vector module "
-                + vectorModule() + ")");
-        Path tmp = Files.createTempFile(outFile.getParent(), outFile.getFileName().toString(), ".tmp");
-        Files.writeString(tmp, "[\n" + String.join(",\n", rows) + "\n]\n", StandardCharsets.UTF_8);
-        Files.move(tmp, outFile, StandardCopyOption.REPLACE_EXISTING, StandardCopyOption.ATOMIC_MOVE);
+                + CpuTimeRuns.vectorModule() + ")");
+        CpuTimeRuns.writeRows(outFile, rows);
     }
 }
