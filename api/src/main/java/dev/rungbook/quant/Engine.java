@@ -947,21 +947,40 @@ final class Engine {
         float[] scales = new float[seg.count];
         Arrays.fill(scales, 1f);
         float[][] levels = new float[seg.count][];
-        Codes codes = eachSegment(q.codeBits(), false, deq, (s, buf, out, cbuf) -> {
-            String fitTask = t.label() + (seg.axis < 0 ? "" : " " + segmentName(s)) + " (spec " + q.label() + ")";
-            Codebook1D.Result r = Codebook1D.fit(buf, k, seg.count == 1 ? progress : null, fitTask);
-            double[] lv = r.levels();
-            double[] th = r.thresholds();
-            double[] search = padded(th.length);
-            System.arraycopy(th, 0, search, 0, th.length);
-            float[] lf = new float[k];
-            for (int j = 0; j < k; j++) {
-                lf[j] = (float) lv[j];
+        if (kernels && seg.contiguous() && q.codeBits() <= 8) {
+            // contiguous segments: fitted from the tensor's own array (a per-tensor fit needs no copy), codes and
+            // values written in place
+            byte[] bytes = new byte[n];
+            for (int s = 0; s < seg.count; s++) {
+                step(s);
+                int off = seg.offset(s);
+                float[] v = off == 0 && m == data.length ? data : Arrays.copyOfRange(data, off, off + m);
+                Codebook1D.Result r = fitCodebook(v, s);
+                levels[s] = floatLevels(r);
+                if (!codebookKernel(data, off, m, levels[s], r.thresholds(), deq, bytes)) {
+                    double[] search = searchTable(r);
+                    for (int i = off; i < off + m; i++) {
+                        int c = countBelow(search, data[i]);
+                        bytes[i] = (byte) c;
+                        deq[i] = levels[s][c];
+                    }
+                }
             }
+            progress.finish(task);
+            return finish(deq, Codes.wrap(bytes, q.codeBits(), false), scales, null, levels, 32L * k * seg.count);
+        }
+        byte[] scratch = new byte[m];
+        Codes codes = eachSegment(q.codeBits(), false, deq, (s, buf, out, cbuf) -> {
+            Codebook1D.Result r = fitCodebook(buf, s);
+            float[] lf = floatLevels(r);
             levels[s] = lf;
-            if (codebookKernel(buf, m, lf, th, cbuf, out)) {
+            if (codebookKernel(buf, 0, m, lf, r.thresholds(), out, scratch)) {
+                for (int i = 0; i < m; i++) {
+                    cbuf[i] = scratch[i] & 0xFF;
+                }
                 return;
             }
+            double[] search = searchTable(r);
             for (int i = 0; i < m; i++) {
                 int c = countBelow(search, buf[i]);
                 cbuf[i] = c;
@@ -971,18 +990,42 @@ final class Engine {
         return finish(deq, codes, scales, null, levels, 32L * k * seg.count);
     }
 
+    /** Fits segment {@code s}'s codebook to its values {@code v} (reporting progress for a single segment). */
+    private Codebook1D.Result fitCodebook(float[] v, int s) {
+        String fitTask = t.label() + (seg.axis < 0 ? "" : " " + segmentName(s)) + " (spec " + q.label() + ")";
+        return Codebook1D.fit(v, q.bits, seg.count == 1 ? progress : null, fitTask);
+    }
+
+    private static float[] floatLevels(Codebook1D.Result r) {
+        double[] lv = r.levels();
+        float[] lf = new float[lv.length];
+        for (int j = 0; j < lv.length; j++) {
+            lf[j] = (float) lv[j];
+        }
+        return lf;
+    }
+
+    /** The decision points padded for {@link #countBelow}. */
+    private static double[] searchTable(Codebook1D.Result r) {
+        double[] th = r.thresholds();
+        double[] search = padded(th.length);
+        System.arraycopy(th, 0, search, 0, th.length);
+        return search;
+    }
+
     /**
-     * The codebook's codes (the number of decision points strictly below each value) and values through the NF4
-     * level kernel: with a power-of-two scale {@code p >= max |x|}, {@code x / p}, the decision points over
-     * {@code p} and the levels over {@code p} are exact, so counting the scaled points below the scaled value is the
-     * same count, and {@code p * (level / p)} is the level. Returns false, doing nothing, where that does not hold
-     * (more than 128 levels, levels that collide as floats, a scaled level that would lose bits) or the kernels are off.
+     * The codebook's codes (the number of decision points strictly below each value) and values of
+     * {@code v[off, off + m)} into {@code bytes} and {@code out} at the same indices, through the NF4 level kernel:
+     * with a power-of-two scale {@code p >= max |x|}, {@code x / p}, the decision points over {@code p} and the
+     * levels over {@code p} are exact, so counting the scaled points below the scaled value is the same count, and
+     * {@code p * (level / p)} is the level. Returns false, doing nothing, where that does not hold (more than 128
+     * levels, levels that collide as floats, a scaled level that would lose bits) or the kernels are off.
      */
-    private boolean codebookKernel(float[] v, int m, float[] lf, double[] th, int[] cbuf, float[] out) {
+    private boolean codebookKernel(float[] v, int off, int m, float[] lf, double[] th, float[] out, byte[] bytes) {
         if (!kernels || lf.length > 128) {
             return false;
         }
-        float p = (float) pow2Ceil(Math.max(Lanes.maxAbs(v, 0, m), Float.MIN_NORMAL));
+        float p = (float) pow2Ceil(Math.max(Lanes.maxAbs(v, off, off + m), Float.MIN_NORMAL));
         if (!(p < Float.POSITIVE_INFINITY)) {
             return false;
         }
@@ -1000,12 +1043,8 @@ final class Engine {
                 return false;
             }
         }
-        byte[] b = new byte[m];
-        SegmentKernels.levels(v, 0, 1, m, new float[] {p}, 0, SegmentKernels.Levels.of(scaled, mids), out, b,
+        SegmentKernels.levels(v, off, 1, m, new float[] {p}, 0, SegmentKernels.Levels.of(scaled, mids), out, bytes,
                 new float[Math.min(m, KERNEL_CHUNK)]);
-        for (int i = 0; i < m; i++) {
-            cbuf[i] = b[i];
-        }
         path = "kernel";
         return true;
     }

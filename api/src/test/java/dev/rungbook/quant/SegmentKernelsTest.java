@@ -287,6 +287,7 @@ class SegmentKernelsTest {
                 assertSameResults(q, gauss);
                 assertSameResults(q.perChannel(0), rows);
                 assertSameResults(q.perChannel(0), gauss);
+                assertSameResults(q.perChannel(1), gauss); // strided channels: the gathered segments' kernel
             }
         }
         float[] g = new float[4096];
