@@ -158,5 +158,17 @@ class FusedSegmentsTest {
         assertTrue(e.getMessage().contains("need 5 x 16"), e.getMessage());
         assertThrows(IllegalArgumentException.class,
                 () -> FusedSegments.linear(new float[8], 1, 8, 9, new float[1], new byte[8], new float[8], null, null));
+        // a bad value in a later run of segments, whose magnitudes the previous run's kernel took on the side
+        float[] big = new float[600 * 16];
+        java.util.Arrays.fill(big, 0.5f);
+        big[300 * 16 + 5] = Float.POSITIVE_INFINITY;
+        e = assertThrows(IllegalArgumentException.class, () -> FusedSegments.nf4(big, 600, 16, new float[600],
+                new byte[big.length], new float[big.length], null, null));
+        assertTrue(e.getMessage().contains("index " + (300 * 16 + 5)) && e.getMessage().contains("segment 300"),
+                e.getMessage());
+        big[300 * 16 + 5] = Float.NaN;
+        e = assertThrows(IllegalArgumentException.class, () -> FusedSegments.linear(big, 600, 16, 4, new float[600],
+                new byte[big.length], new float[big.length], null, null));
+        assertTrue(e.getMessage().contains("index " + (300 * 16 + 5)), e.getMessage());
     }
 }
