@@ -41,8 +41,12 @@ import java.util.Arrays;
  *       fixed points up to 2e-5 worse).</li>
  * </ul>
  *
- * <p>Cost: sorting aside, the large path makes one pass over the data for block prefix sums (one sum per 64 values,
- * so little extra memory), the program on bins, {@code O(k log n)} per Lloyd step, about
+ * <p>Cost: on sorted data the large path makes one pass for block prefix sums (one sum per 64 values, so little
+ * extra memory). Raw floats of at least {@link #BUCKETED_MIN_LENGTH} values with many distinct values skip the full
+ * sort: one pass files them under 2^18 buckets of value with exact integer moments ({@link BucketedFloatData}), which
+ * gives the blocks directly, and only the buckets the Lloyd steps and windows read are copied out and sorted, one
+ * pass over the data each time new ones are needed (on 2^24 Gaussian values and k = 16, typically one pass and
+ * under a million values sorted). Either way there follow the program on bins, {@code O(k log n)} per Lloyd step, about
  * {@code k * 2 WINDOW * log2(2 WINDOW)} cell evaluations per windowed round (usually one or two rounds) and an
  * evaluation of the MSE from the prefix sums at the boundaries (relative rounding about {@code 1e-12}).
  */
@@ -56,6 +60,11 @@ public final class Codebook1D {
     public static final int MAX_LLOYD_ITERATIONS = 100_000;
     /** Half-width, in values, of the windows of the large path's windowed exact program. */
     public static final int WINDOW = 4096;
+    /**
+     * From this many raw floats on, {@link #fit(float[], int, Progress, String)} avoids the full sort when the data
+     * have many distinct values (see {@link BucketedFloatData}).
+     */
+    public static final int BUCKETED_MIN_LENGTH = 1 << 18;
     private static final int MAX_POLISH_ROUNDS = 1000;
 
     private static final String DEFAULT_TASK = "codebook";
@@ -77,11 +86,14 @@ public final class Codebook1D {
     }
 
     /**
-     * Fits {@code k} levels to raw values: sorts a copy with {@link FloatSort}; with at most {@link #EXACT_LIMIT}
-     * distinct values it compresses the copy to distinct values with counts and solves exactly, as
-     * {@link #fit(double[], double[], int, Progress, String)} does; with more it runs the large path on the sorted
-     * copy itself (unit weights, repeats allowed: the same problem without building the compressed arrays). The
-     * guarantees are those of the class comment. {@code -0.0f} and {@code +0.0f} are the same value.
+     * Fits {@code k} levels to raw values. With at most {@link #EXACT_LIMIT} distinct values it compresses them to
+     * distinct values with counts and solves exactly, as {@link #fit(double[], double[], int, Progress, String)}
+     * does; with more it runs the large path on the sorted multiset (unit weights, repeats allowed: the same problem
+     * without building the compressed arrays). Below {@link #BUCKETED_MIN_LENGTH} values, or when the values span too
+     * few buckets of value, that is a sorted copy made with {@link FloatSort}; above, the sorted order is read
+     * through {@link BucketedFloatData}, which sorts only the stretches the large path reads (same partition up to
+     * the rounding of the sums). The guarantees are those of the class comment. {@code -0.0f} and {@code +0.0f} are
+     * the same value.
      *
      * @param values the data (not modified); must be finite
      * @param k number of levels, at least 1 and at most the number of distinct values
@@ -92,6 +104,19 @@ public final class Codebook1D {
      */
     public static Result fit(float[] values, int k, Progress progress, String task) {
         String name = task == null ? DEFAULT_TASK : task;
+        if (values.length >= BUCKETED_MIN_LENGTH && k >= 1
+                && BucketedFloatData.moreDistinctThan(values, Math.max(EXACT_LIMIT, k))) {
+            // The large path, as after a full sort, but sorting only the stretches it reads.
+            BucketedFloatData data = BucketedFloatData.of(values, binTarget(k), name);
+            if (data != null) {
+                return runLarge(data, k, progress, name);
+            }
+        }
+        return fitBySorting(values, k, progress, name);
+    }
+
+    /** {@link #fit(float[], int, Progress, String)} through a full sort, whatever the size (package-private for tests). */
+    static Result fitBySorting(float[] values, int k, Progress progress, String name) {
         for (int i = 0; i < values.length; i++) {
             if (!Float.isFinite(values[i])) {
                 throw new IllegalArgumentException(name + ": value at index " + i + " is " + values[i]);
@@ -118,15 +143,24 @@ public final class Codebook1D {
         if (distinct > EXACT_LIMIT) {
             // The large path handles repeated values directly (unit weights on the sorted multiset); this is the
             // same problem as distinct values weighted by their counts, without building the compressed arrays.
-            Progress p = progress == null ? Progress.silent() : progress;
-            try {
-                return largeFit(new FloatData(sorted), k, p, name);
-            } finally {
-                p.finish(name);
-            }
+            return runLarge(new FloatData(sorted), k, progress, name);
         }
         double[][] vc = FloatSort.distinctWithCounts(sorted);
         return fitChecked(vc[0], vc[1], k, progress, name, false);
+    }
+
+    /** Bins of the large path's compression for {@code k} levels. */
+    private static int binTarget(int k) {
+        return Math.max(16 * k, COMPRESSED_BINS);
+    }
+
+    private static Result runLarge(Data data, int k, Progress progress, String name) {
+        Progress p = progress == null ? Progress.silent() : progress;
+        try {
+            return largeFit(data, k, p, name);
+        } finally {
+            p.finish(name);
+        }
     }
 
     /**
@@ -306,11 +340,15 @@ public final class Codebook1D {
     // ---------------------------------------------------------------- large path
 
     /**
-     * Sorted data for the large path: ascending values (repeats allowed) with weights. Hot loops live in the
-     * implementations so that each stays monomorphic.
+     * Data for the large path: ascending values (repeats allowed) with weights, addressed by position in sorted
+     * order. Hot loops live in the implementations so that each stays monomorphic. An implementation may hold only
+     * part of the sorted order in memory: positions become readable after {@link #prepareThresholds} or
+     * {@link #preparePositions} named them (the sorted implementations have everything from the start).
      */
-    private abstract static class Data {
+    abstract static class Data {
         final int n;
+        /** Centre subtracted in every centred sum (a value near the bulk keeps the sums well conditioned). */
+        double mu;
 
         Data(int n) {
             this.n = n;
@@ -324,16 +362,83 @@ public final class Codebook1D {
         abstract int upperBound(double t);
 
         /**
-         * Fills prefix sums at every {@code block}-th item: {@code pw[b]}, {@code ps[b]}, {@code pq[b]} are the sums of
-         * {@code w}, {@code w (x - mu)} and {@code w (x - mu)^2} over items {@code [0, b * block)}; the last entry
-         * covers all items.
+         * Cuts the items into consecutive blocks with exact prefix sums at their starts, about {@code 4 target}
+         * blocks or fewer. {@code pos[b]} is the first item of block {@code b} ({@code pos[blocks] == n});
+         * {@code pw[b]}, {@code ps[b]}, {@code pq[b]} are the sums of {@code w}, {@code w (x - mu)} and
+         * {@code w (x - mu)^2} over items {@code [0, pos[b])}.
          */
-        abstract void blockPrefix(double mu, int block, double[] pw, double[] ps, double[] pq);
+        abstract Blocks blocks(int target);
 
+        /** Fills {@code out[0..2]} with the centred prefix sums over items {@code [0, i)}. */
+        abstract void prefixAt(int i, double[] out);
+
+        /** Makes {@link #upperBound} answerable for each of the given thresholds. */
+        void prepareThresholds(double[] t) {
+        }
+
+        /** Makes positions {@code [lo[m], hi[m]]} readable for every {@code m}. */
+        void preparePositions(int[] lo, int[] hi) {
+        }
+    }
+
+    /** Block starts and the prefix sums at them (see {@link Data#blocks(int)}). */
+    record Blocks(int[] pos, double[] pw, double[] ps, double[] pq) {
+        int count() {
+            return pos.length - 1;
+        }
+    }
+
+    /** Fully sorted data: fixed blocks of up to 64 items, prefix sums between block starts by a short scan. */
+    private abstract static class SortedData extends Data {
+        private int block;
+        private double[] pw;
+        private double[] ps;
+        private double[] pq;
+
+        SortedData(int n) {
+            super(n);
+        }
+
+        /** Fills the prefix sums at every {@code block}-th item (the last entry covers all items). */
+        abstract void blockPrefix(int block, double[] pw, double[] ps, double[] pq);
+
+        @Override
+        final Blocks blocks(int target) {
+            mu = value(n / 2);
+            block = (int) Math.max(1, Math.min(64, n / (4L * target)));
+            int blocks = (n + block - 1) / block;
+            pw = new double[blocks + 1];
+            ps = new double[blocks + 1];
+            pq = new double[blocks + 1];
+            blockPrefix(block, pw, ps, pq);
+            int[] pos = new int[blocks + 1];
+            for (int b = 0; b <= blocks; b++) {
+                pos[b] = (int) Math.min(n, (long) b * block);
+            }
+            return new Blocks(pos, pw, ps, pq);
+        }
+
+        @Override
+        final void prefixAt(int i, double[] out) {
+            int b = i / block;
+            double sw = pw[b];
+            double s = ps[b];
+            double q = pq[b];
+            for (int j = b * block; j < i; j++) {
+                double wj = weight(j);
+                double y = value(j) - mu;
+                sw += wj;
+                s += wj * y;
+                q += wj * y * y;
+            }
+            out[0] = sw;
+            out[1] = s;
+            out[2] = q;
+        }
     }
 
     /** Ascending floats with unit weights (repeats allowed). */
-    private static final class FloatData extends Data {
+    private static final class FloatData extends SortedData {
         final float[] x;
 
         FloatData(float[] x) {
@@ -367,7 +472,7 @@ public final class Codebook1D {
         }
 
         @Override
-        void blockPrefix(double mu, int block, double[] pw, double[] ps, double[] pq) {
+        void blockPrefix(int block, double[] pw, double[] ps, double[] pq) {
             double s = 0;
             double q = 0;
             int b = 0;
@@ -391,7 +496,7 @@ public final class Codebook1D {
     }
 
     /** Distinct ascending doubles with optional weights ({@code null}: all 1). */
-    private static final class DoubleData extends Data {
+    private static final class DoubleData extends SortedData {
         final double[] x;
         final double[] w;
 
@@ -427,7 +532,7 @@ public final class Codebook1D {
         }
 
         @Override
-        void blockPrefix(double mu, int block, double[] pw, double[] ps, double[] pq) {
+        void blockPrefix(int block, double[] pw, double[] ps, double[] pq) {
             double sw = 0;
             double s = 0;
             double q = 0;
@@ -457,14 +562,10 @@ public final class Codebook1D {
 
     private static Result largeFit(Data data, int k, Progress p, String name) {
         int n = data.n;
-        double mu = data.value(n / 2); // centre for the sums (any value near the bulk keeps them well conditioned)
-        int target = Math.max(16 * k, COMPRESSED_BINS);
-        int block = (int) Math.max(1, Math.min(64, n / (4L * target)));
-        int blocks = (n + block - 1) / block;
-        double[] pw = new double[blocks + 1];
-        double[] ps = new double[blocks + 1];
-        double[] pq = new double[blocks + 1];
-        data.blockPrefix(mu, block, pw, ps, pq);
+        int target = binTarget(k);
+        Blocks bl = data.blocks(target);
+        int blocks = bl.count();
+        double[] pw = bl.pw();
         double total = pw[blocks];
 
         // Compression: bins of whole blocks, cut by equal weight and by equal count, each with exact moments.
@@ -490,35 +591,34 @@ public final class Codebook1D {
         double[] bq = new double[bins + 1];
         for (int b = 0; b <= bins; b++) {
             bw[b] = pw[binBlock[b]];
-            bs[b] = ps[binBlock[b]];
-            bq[b] = pq[binBlock[b]];
+            bs[b] = bl.ps()[binBlock[b]];
+            bq[b] = bl.pq()[binBlock[b]];
         }
         Progress.checkInterrupted(name);
         int[] binBounds = partition(bw, bs, bq, bins, k, Progress.silent(), name);
         int[] bounds = new int[k + 1];
         for (int m = 0; m <= k; m++) {
-            bounds[m] = Math.min(n, binBlock[binBounds[m]] * block);
+            bounds[m] = bl.pos()[binBlock[binBounds[m]]];
         }
 
         // Lloyd iterations until the partition is stable, then the exact program restricted to windows of
         // +-WINDOW values around each boundary; repeat until the windowed optimum is the current partition.
-        Prefix prefix = new Prefix(data, block, mu, pw, ps, pq);
         double[] levels = new double[k];
         int iter = 0;
         for (int round = 0; round < MAX_POLISH_ROUNDS; round++) {
-            iter += lloyd(data, prefix, bounds, levels, MAX_LLOYD_ITERATIONS - iter, p, name, iter);
+            iter += lloyd(data, bounds, levels, MAX_LLOYD_ITERATIONS - iter, p, name, iter);
             Progress.checkInterrupted(name);
-            if (iter >= MAX_LLOYD_ITERATIONS || !windowPolish(prefix, bounds, n)) {
+            if (iter >= MAX_LLOYD_ITERATIONS || !windowPolish(data, bounds, n)) {
                 break;
             }
         }
         // MSE from the prefix sums at the boundaries (levels are the cell means): no further pass over the data.
         double[] at = new double[3];
         double[] prev = new double[3];
-        prefix.at(0, prev);
+        data.prefixAt(0, prev);
         double sse = 0;
         for (int m = 0; m < k; m++) {
-            prefix.at(bounds[m + 1], at);
+            data.prefixAt(bounds[m + 1], at);
             double w = at[0] - prev[0];
             if (w > 0) {
                 double sc = at[1] - prev[1];
@@ -530,72 +630,40 @@ public final class Codebook1D {
         return new Result(levels, midpoints(levels), sse / prev[0], iter, false);
     }
 
-    /** Prefix sums of weight, centred sum and centred square at any item index, from the block prefixes. */
-    private static final class Prefix {
-        final Data data;
-        final int block;
-        final double mu;
-        final double[] pw;
-        final double[] ps;
-        final double[] pq;
-
-        Prefix(Data data, int block, double mu, double[] pw, double[] ps, double[] pq) {
-            this.data = data;
-            this.block = block;
-            this.mu = mu;
-            this.pw = pw;
-            this.ps = ps;
-            this.pq = pq;
-        }
-
-        /** Fills {@code out[0..2]} with the sums over items {@code [0, i)}. */
-        void at(int i, double[] out) {
-            int b = i / block;
-            double sw = pw[b];
-            double s = ps[b];
-            double q = pq[b];
-            for (int j = b * block; j < i; j++) {
-                double wj = data.weight(j);
-                double y = data.value(j) - mu;
-                sw += wj;
-                s += wj * y;
-                q += wj * y * y;
-            }
-            out[0] = sw;
-            out[1] = s;
-            out[2] = q;
-        }
-    }
-
     /**
      * Lloyd steps from the partition {@code bounds} (updated in place) until it is stable or {@code budget} steps
      * ran; {@code levels} receives the cell means. Returns the number of steps.
      */
-    private static int lloyd(Data data, Prefix prefix, int[] bounds, double[] levels, int budget, Progress p,
-            String name, int done) {
+    private static int lloyd(Data data, int[] bounds, double[] levels, int budget, Progress p, String name,
+            int done) {
         int k = levels.length;
         double[] prefW = new double[k + 1];
         double[] prefS = new double[k + 1];
         double[] tmp = new double[3];
+        double[] mids = new double[k - 1];
         int[] next = bounds.clone();
         int iter = 0;
         while (true) {
             Progress.checkInterrupted(name);
             for (int m = 0; m <= k; m++) {
-                prefix.at(bounds[m], tmp);
+                data.prefixAt(bounds[m], tmp);
                 prefW[m] = tmp[0];
                 prefS[m] = tmp[1];
             }
             for (int m = 0; m < k; m++) {
                 if (bounds[m + 1] > bounds[m]) {
-                    levels[m] = (prefS[m + 1] - prefS[m]) / (prefW[m + 1] - prefW[m]) + prefix.mu;
+                    levels[m] = (prefS[m + 1] - prefS[m]) / (prefW[m + 1] - prefW[m]) + data.mu;
                 } // an empty cell keeps its previous level, which stays between its neighbours
             }
             if (iter >= budget) {
                 return iter;
             }
             for (int m = 1; m < k; m++) {
-                next[m] = data.upperBound(0.5 * (levels[m - 1] + levels[m]));
+                mids[m - 1] = 0.5 * (levels[m - 1] + levels[m]);
+            }
+            data.prepareThresholds(mids);
+            for (int m = 1; m < k; m++) {
+                next[m] = data.upperBound(mids[m - 1]);
             }
             iter++;
             p.update(name, done + iter, -1, Double.NaN);
@@ -611,7 +679,7 @@ public final class Codebook1D {
      * the current ones (the exact program on that restricted domain, divide and conquer). Returns whether the
      * partition changed with a strictly lower cost.
      */
-    private static boolean windowPolish(Prefix prefix, int[] bounds, int n) {
+    private static boolean windowPolish(Data data, int[] bounds, int n) {
         int k = bounds.length - 1;
         if (k == 1) {
             return false;
@@ -624,6 +692,7 @@ public final class Codebook1D {
             lo[m] = Math.max(m, bounds[m] - WINDOW);
             hi[m] = Math.min(n - (k - m), bounds[m] + WINDOW);
         }
+        data.preparePositions(lo, hi);
         // Prefix sums at every window position: wpw[m][j - lo[m]].
         double[][] wpw = new double[k + 1][];
         double[][] wps = new double[k + 1][];
@@ -634,15 +703,15 @@ public final class Codebook1D {
             wpw[m] = new double[len];
             wps[m] = new double[len];
             wpq[m] = new double[len];
-            prefix.at(lo[m], tmp);
+            data.prefixAt(lo[m], tmp);
             double sw = tmp[0];
             double s = tmp[1];
             double q = tmp[2];
             for (int t = 0; t < len; t++) {
                 if (t > 0) {
                     int j = lo[m] + t - 1;
-                    double wj = prefix.data.weight(j);
-                    double y = prefix.data.value(j) - prefix.mu;
+                    double wj = data.weight(j);
+                    double y = data.value(j) - data.mu;
                     sw += wj;
                     s += wj * y;
                     q += wj * y * y;

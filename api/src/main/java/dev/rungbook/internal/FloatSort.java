@@ -55,6 +55,23 @@ public final class FloatSort {
         return out;
     }
 
+    /**
+     * Sorts {@code a[from, to)} in place, in the order of {@link #sort(float[])}.
+     *
+     * @param a the array (modified in that range only)
+     * @param from first index, inclusive
+     * @param to last index, exclusive
+     */
+    public static void sortRange(float[] a, int from, int to) {
+        if (to - from < RADIX_THRESHOLD) {
+            Arrays.sort(a, from, to);
+            return;
+        }
+        float[] slice = Arrays.copyOfRange(a, from, to);
+        sortInto(slice, slice);
+        System.arraycopy(slice, 0, a, from, slice.length);
+    }
+
     /** Radix-sorts {@code in} into {@code out} (which may be {@code in}); the first pass reads all of {@code in}. */
     private static void sortInto(float[] a, float[] out) {
         int n = a.length;

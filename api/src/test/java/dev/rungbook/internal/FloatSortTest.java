@@ -26,6 +26,24 @@ class FloatSortTest {
     }
 
     @Test
+    void sortsARangeLikeArraysSortAndLeavesTheRestAlone() {
+        Random r = Fixtures.random(3);
+        for (int len : new int[] {0, 5, FloatSort.RADIX_THRESHOLD - 1, FloatSort.RADIX_THRESHOLD, 50_000}) {
+            float[] v = new float[len + 300];
+            for (int i = 0; i < v.length; i++) {
+                v[i] = i % 97 == 0 ? (i % 2 == 0 ? -0.0f : 0.0f) : (float) r.nextGaussian();
+            }
+            float[] expected = v.clone();
+            Arrays.sort(expected, 100, 100 + len); // Source: the JDK's Arrays.sort(float[], int, int) total order
+            FloatSort.sortRange(v, 100, 100 + len);
+            for (int i = 0; i < v.length; i++) {
+                assertEquals(Float.floatToRawIntBits(expected[i]), Float.floatToRawIntBits(v[i]),
+                        "length " + len + ", index " + i);
+            }
+        }
+    }
+
+    @Test
     void sortsRandomValuesLikeArraysSort() {
         Random r = Fixtures.random(1);
         for (int n : new int[] {0, 1, 7, 4095, 4096, 4097, 100_000, 1 << 20}) {
