@@ -215,19 +215,10 @@ final class BucketedFloatData extends Codebook1D.Data {
         return new Codebook1D.Blocks(pos, pw, ps, pq);
     }
 
-    /** Occupied bucket holding position {@code i} ({@code 0 <= i < n}). */
+    /** Occupied bucket holding position {@code i} ({@code 0 <= i < n}); bucket starts ascend strictly. */
     private int bucketOf(int i) {
-        int lo = 0;
-        int hi = ids.length - 1;
-        while (lo < hi) {
-            int mid = (lo + hi + 1) >>> 1;
-            if (pos[mid] <= i) {
-                lo = mid;
-            } else {
-                hi = mid - 1;
-            }
-        }
-        return lo;
+        int j = Arrays.binarySearch(pos, 0, ids.length, i);
+        return j >= 0 ? j : -j - 2;
     }
 
     private int start(int j) {
@@ -278,35 +269,20 @@ final class BucketedFloatData extends Codebook1D.Data {
         return f == 0f ? 0f : f;
     }
 
-    /** Index of the first occupied bucket with id {@code >= b}, or {@code ids.length}. */
-    private int firstAtOrAbove(int b) {
-        int lo = 0;
-        int hi = ids.length;
-        while (lo < hi) {
-            int mid = (lo + hi) >>> 1;
-            if (ids[mid] < b) {
-                lo = mid + 1;
-            } else {
-                hi = mid;
-            }
-        }
-        return lo;
-    }
-
-    /** Occupied bucket index whose values straddle threshold {@code t}, or -1 if {@code t} falls between buckets. */
-    private int straddling(double t) {
-        float f = floorFloat(t);
-        int b = FloatSort.key(Float.floatToRawIntBits(f)) >>> LOW_BITS;
-        int j = firstAtOrAbove(b);
-        return j < ids.length && ids[j] == b ? j : -1;
+    /**
+     * Where threshold {@code t} falls among the occupied buckets: {@code j >= 0} if occupied bucket {@code j} holds
+     * the largest float {@code <= t}'s bucket (its values straddle {@code t}), else {@code -(j + 1)} with {@code j}
+     * the first occupied bucket above {@code t} ({@code ids.length} if none).
+     */
+    private int locate(double t) {
+        return Arrays.binarySearch(ids, FloatSort.key(Float.floatToRawIntBits(floorFloat(t))) >>> LOW_BITS);
     }
 
     @Override
     int upperBound(double t) {
-        float f = floorFloat(t);
-        int b = FloatSort.key(Float.floatToRawIntBits(f)) >>> LOW_BITS;
-        int j = firstAtOrAbove(b);
-        if (j == ids.length || ids[j] > b) {
+        int j = locate(t);
+        if (j < 0) {
+            j = -j - 1;
             return j == ids.length ? n : pos[j]; // every value in the buckets before j is <= t, none after
         }
         int p = start(j);
@@ -325,13 +301,10 @@ final class BucketedFloatData extends Codebook1D.Data {
 
     @Override
     void prepareThresholds(double[] t) {
-        boolean[] want = null;
+        boolean[] want = new boolean[ids.length];
         for (double v : t) {
-            int j = straddling(v);
-            if (j >= 0 && poolStart[j] < 0) {
-                if (want == null) {
-                    want = new boolean[ids.length];
-                }
+            int j = locate(v);
+            if (j >= 0 && poolStart[j] < 0) { // the buckets t falls in that are not yet readable, and margins
                 int from = j;
                 while (from > 0 && pos[j] - pos[from] < SPAN) {
                     from--;
@@ -340,49 +313,45 @@ final class BucketedFloatData extends Codebook1D.Data {
                 while (to < ids.length - 1 && pos[to + 1] - pos[j + 1] < SPAN) {
                     to++;
                 }
-                for (int u = from; u <= to; u++) {
-                    want[u] = true;
-                }
+                Arrays.fill(want, from, to + 1, true);
             }
         }
-        if (want != null) {
-            materialise(want);
-        }
+        materialise(want);
     }
 
     @Override
     void preparePositions(int[] lo, int[] hi) {
-        boolean[] want = null;
+        boolean[] want = new boolean[ids.length];
         for (int m = 0; m < lo.length; m++) {
             if (lo[m] >= n) {
                 continue;
             }
             int to = bucketOf(Math.min(hi[m], n - 1));
             for (int j = bucketOf(lo[m]); j <= to; j++) {
-                if (poolStart[j] < 0 && !(pos[j] == lo[m] && lo[m] == hi[m])) {
-                    if (want == null) {
-                        want = new boolean[ids.length];
-                    }
-                    want[j] = true;
-                }
+                // a window that is only a bucket's first position needs nothing inside the bucket
+                want[j] |= !(pos[j] == lo[m] && lo[m] == hi[m]);
             }
         }
-        if (want != null) {
-            materialise(want);
-        }
+        materialise(want);
     }
 
-    /** One pass over the data copies the wanted buckets' values into the pool; each slice is then sorted. */
+    /**
+     * One pass over the data copies the values of the wanted buckets not yet in the pool into it; each slice is then
+     * sorted. No pass when there are none.
+     */
     private void materialise(boolean[] want) {
-        long[] flagged = new long[BUCKETS / 64];
-        if (cursor == null) {
-            cursor = new int[BUCKETS];
-        }
         int add = 0;
         for (int j = 0; j < ids.length; j++) {
             if (want[j] && poolStart[j] < 0) {
                 add += pos[j + 1] - pos[j];
             }
+        }
+        if (add == 0) {
+            return;
+        }
+        long[] flagged = new long[BUCKETS / 64];
+        if (cursor == null) {
+            cursor = new int[BUCKETS];
         }
         int need = poolUsed + add;
         if (need > pool.length) {
