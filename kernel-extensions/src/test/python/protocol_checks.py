@@ -4,7 +4,10 @@ that the kernel still answers after exceptions, a StackOverflowError, an OutOfMe
 
 Run with JUPYTER_PATH pointing at the kernel spec under test. Prints one line per check; exits 1 on failure.
 """
+import os
+import shutil
 import sys
+import tempfile
 import threading
 import time
 
@@ -151,13 +154,25 @@ def main():
         check("malformed: kernel answers the next message", value(kc, "41 + 2") == "43")
 
         # Output of a background thread after its cell finished is dropped with a notice in the next cell.
-        execute(kc, 'new Thread(() -> { try { Thread.sleep(300); } catch (InterruptedException e) { } '
-                    'System.out.println("late"); }).start();')
-        time.sleep(1.0)
+        # A file handshake orders the events on a loaded machine: the thread prints only once the cell has
+        # ended, and the next cell starts only once the thread has printed.
+        handshake = tempfile.mkdtemp(prefix="rungbook-late-")
+        go, printed = os.path.join(handshake, "go"), os.path.join(handshake, "printed")
+        execute(kc, 'new Thread(() -> { try { var go = java.nio.file.Path.of("%s"); '
+                    'while (!java.nio.file.Files.exists(go)) Thread.sleep(20); System.out.println("late"); '
+                    'java.nio.file.Files.createFile(java.nio.file.Path.of("%s")); } catch (Exception e) { } }).start();'
+                    % (go, printed))
+        open(go, "w").close()
+        deadline = time.time() + 30
+        while time.time() < deadline and not os.path.exists(printed):
+            time.sleep(0.05)
         reply, msgs = execute(kc, "1")
         notices = [m["content"]["text"] for m in msgs if m["msg_type"] == "stream" and m["content"]["name"] == "stderr"]
         check("background output after its cell is dropped with a notice",
-              any("arrived after it had finished and were dropped" in t for t in notices), str(notices))
+              os.path.exists(printed) and any("arrived after it had finished and were dropped" in t for t in notices),
+              "thread printed: %s, stderr of the next cell: %s, its messages: %s"
+              % (os.path.exists(printed), notices, str([(m["msg_type"], m["content"]) for m in msgs])[:400]))
+        shutil.rmtree(handshake, ignore_errors=True)
 
         # stop_on_error: requests already waiting when a cell fails are aborted, later ones run.
         ids = [kc.execute('Thread.sleep(300); throw new IllegalStateException("first fails");'),
