@@ -40,7 +40,7 @@ public final class ForwardKernels {
     static {
         MethodHandle[] h = Lanes.vectorMethods("dev.rungbook.internal.VectorForward",
                 "floatPanel", MethodType.methodType(void.class, float[].class, int.class, int.class, float[].class,
-                        int.class, float[].class, int.class, int.class, int[].class, int.class),
+                        int.class, float[].class, int.class, int.class, float[].class, int.class, boolean.class),
                 "intPanel", MethodType.methodType(void.class, int[].class, int.class, int.class, int[].class,
                         int.class, int[].class, int.class, int.class, int[].class, int.class),
                 "convPositions", MethodType.methodType(void.class, float[].class, int.class, int.class,
@@ -184,21 +184,12 @@ public final class ForwardKernels {
                 }
                 return y;
             }
-            int[] bits = new int[n * out];
             for (int j0 = 0; j0 < out; j0 += panelWidth(j0, out, FLOAT_LANES)) {
                 try {
-                    FLOAT_PANEL.invokeExact(x, n, in, w, j0 * in, b, j0, panelWidth(j0, out, FLOAT_LANES), bits, out);
+                    FLOAT_PANEL.invokeExact(x, n, in, w, j0 * in, b, j0, panelWidth(j0, out, FLOAT_LANES), y, out,
+                            relu);
                 } catch (Throwable e) {
                     throw Lanes.unchecked(e);
-                }
-            }
-            if (relu) {
-                for (int i = 0; i < bits.length; i++) {
-                    y[i] = Math.max(0f, Float.intBitsToFloat(bits[i]));
-                }
-            } else {
-                for (int i = 0; i < bits.length; i++) {
-                    y[i] = Float.intBitsToFloat(bits[i]);
                 }
             }
             return y;

@@ -1,5 +1,6 @@
 package dev.rungbook.internal;
 
+import java.nio.ByteOrder;
 import jdk.incubator.vector.DoubleVector;
 import jdk.incubator.vector.FloatVector;
 import jdk.incubator.vector.IntVector;
@@ -20,16 +21,21 @@ import jdk.incubator.vector.VectorSpecies;
  */
 final class VectorForward {
     /**
-     * The preferred (512-bit with AVX-512) float vectors, stored as int vectors ({@code reinterpretAsInts}, the raw
-     * bits) and never combined with {@code add}/{@code mul}/{@code max}. Measured on Java 17: a first version stored
-     * with {@code FloatVector.intoArray} and applied the ReLU with {@code max}; the sample classifier's float pass took
-     * 0.55 to 0.77 ms in a fresh JVM but 21 ms once the quantizers had run. The JIT's inlining log showed why: the
-     * quantizers' error sums store and add 256-bit float vectors, so the receiver-type profiles of those shared
-     * library methods held two vector classes, the JIT inlined both, the vector class was no longer a constant and
-     * every vector was boxed. The methods used here (broadcast, load, fused multiply-add, reinterpretation, int
-     * store) have no other float-vector callers in the library, and the pass stays at 0.7 to 0.9 ms after the
-     * quantizers, or with 256-bit vector code of another library version in the same JVM (measured in
-     * {@code ForwardCpuTime}). A ReLU is applied while the bits are turned back into floats.
+     * The preferred (512-bit with AVX-512) float vectors, stored as bytes ({@code intoByteArray}) into a small scratch
+     * block and never combined with {@code add}/{@code mul}/{@code max}; {@link #unpack} moves each block into the
+     * output with 256-bit vectors. Measured on Java 17: a first version stored with {@code FloatVector.intoArray} and
+     * applied the ReLU with {@code max}; the sample classifier's float pass took 0.55 to 0.77 ms in a fresh JVM but
+     * 21 ms once the quantizers had run. The JIT's inlining log showed why: the quantizers' error sums store and add
+     * 256-bit float vectors, so the receiver-type profiles of those shared library methods held two vector classes,
+     * the JIT inlined both, the vector class was no longer a constant and every vector was boxed. The same happened
+     * again (2026-12-03, {@code ForwardCpuTime}): a 512-bit {@code intoArray} made the pass 20.6 ms instead of 1.5,
+     * and a 256-bit int {@code fromArray} in the unpacking made the integer pass, whose int vectors are 512-bit, 23 ms
+     * instead of 1.5. So every Vector API method has one shape throughout the library: the 512-bit float vectors
+     * here only broadcast, load, fused multiply-add and store as bytes (no other float-vector callers), the unpacking
+     * loads bytes and stores floats in the quantizers' 256-bit shape. A previous version stored the raw bits as int
+     * vectors into a layer-sized int array and turned them into floats in a plain loop afterwards; the layer-sized
+     * array and that loop took about as long as the products (the sample classifier's float pass: 1.25 ms before,
+     * 0.84 ms after, fastest of 61 runs in one JVM).
      */
     private static final VectorSpecies<Float> F = FloatVector.SPECIES_PREFERRED;
     private static final VectorSpecies<Integer> I = IntVector.SPECIES_PREFERRED;
@@ -45,6 +51,8 @@ final class VectorForward {
      * needs separate multiplies and adds (see {@link #F}).
      */
     private static final VectorSpecies<Float> C = FloatVector.SPECIES_256;
+    /** The byte order of the float kernels' scratch blocks: the platform's, so that bytes move as they are. */
+    private static final ByteOrder ORDER = ByteOrder.nativeOrder();
 
     private VectorForward() {
     }
@@ -61,23 +69,24 @@ final class VectorForward {
     /**
      * Float panel {@code [j0, j0 + width)} ({@code width} one or two vectors) of {@code y[n x out] = x[n x in] W^T +
      * b}: {@code pw} from {@code po} holds {@code in} rows of {@code width} weights, {@code pb} from {@code j0} the
-     * bias padded to the panel; the results are stored as their raw bits ({@code Float.floatToRawIntBits}) in
-     * {@code y}, through int vectors (see {@link #F}). Blocks of eight and four rows,
-     * then the rest one by one; each case is a small method of its own, so that the JIT compiles each hot loop on its
-     * own profile.
+     * bias padded to the panel; with {@code relu} each result {@code v} becomes {@code Math.max(v, 0)}. Each block's
+     * results go as bytes (see {@link #F}) into a small scratch and from there, while it is in
+     * the level-1 cache, into {@code y} ({@link #unpack}). Blocks of eight and four rows, then the rest one by one;
+     * each case is a small method of its own, so that the JIT compiles each hot loop on its own profile.
      */
-    static void floatPanel(float[] x, int n, int in, float[] pw, int po, float[] pb, int j0, int width, int[] y,
-            int out) {
+    static void floatPanel(float[] x, int n, int in, float[] pw, int po, float[] pb, int j0, int width, float[] y,
+            int out, boolean relu) {
         int cols = Math.min(width, out - j0);
+        int n8 = n & ~7;
         int n4 = n & ~3;
         if (width == 2 * F.length()) {
-            int n8 = n & ~7;
-            floatTwo8(x, 0, n8, in, pw, po, pb, j0, y, out, cols);
-            floatTwo4(x, n8, n4, in, pw, po, pb, j0, y, out, cols);
-            floatTwo1(x, n4, n, in, pw, po, pb, j0, y, out, cols);
+            floatTwo8(x, 0, n8, in, pw, po, pb, j0, y, out, cols, relu);
+            floatTwo4(x, n8, n4, in, pw, po, pb, j0, y, out, cols, relu);
+            floatTwo1(x, n4, n, in, pw, po, pb, j0, y, out, cols, relu);
         } else {
-            floatOne4(x, 0, n4, in, pw, po, pb, j0, y, out, cols);
-            floatOne1(x, n4, n, in, pw, po, pb, j0, y, out, cols);
+            floatOne8(x, 0, n8, in, pw, po, pb, j0, y, out, cols, relu);
+            floatOne4(x, n8, n4, in, pw, po, pb, j0, y, out, cols, relu);
+            floatOne1(x, n4, n, in, pw, po, pb, j0, y, out, cols, relu);
         }
     }
 
@@ -97,73 +106,11 @@ final class VectorForward {
         }
     }
 
-    /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 4) of a two-vector float panel. */
-    private static void floatTwo4(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, int[] y, int out,
-            int cols) {
-        int l = F.length();
-        int[] tmp = new int[8 * l];
-        FloatVector b0 = FloatVector.fromArray(F, pb, j0);
-        FloatVector b1 = FloatVector.fromArray(F, pb, j0 + l);
-        for (int i = i0; i < i1; i += 4) {
-            int x0 = i * in;
-            int x1 = x0 + in;
-            int x2 = x1 + in;
-            int x3 = x2 + in;
-            FloatVector c00 = b0;
-            FloatVector c01 = b1;
-            FloatVector c10 = b0;
-            FloatVector c11 = b1;
-            FloatVector c20 = b0;
-            FloatVector c21 = b1;
-            FloatVector c30 = b0;
-            FloatVector c31 = b1;
-            for (int t = 0, p = po; t < in; t++, p += 2 * l) {
-                FloatVector w0 = FloatVector.fromArray(F, pw, p);
-                FloatVector w1 = FloatVector.fromArray(F, pw, p + l);
-                FloatVector a = FloatVector.broadcast(F, x[x0 + t]);
-                c00 = w0.fma(a, c00);
-                c01 = w1.fma(a, c01);
-                a = FloatVector.broadcast(F, x[x1 + t]);
-                c10 = w0.fma(a, c10);
-                c11 = w1.fma(a, c11);
-                a = FloatVector.broadcast(F, x[x2 + t]);
-                c20 = w0.fma(a, c20);
-                c21 = w1.fma(a, c21);
-                a = FloatVector.broadcast(F, x[x3 + t]);
-                c30 = w0.fma(a, c30);
-                c31 = w1.fma(a, c31);
-            }
-            int y0 = i * out + j0;
-            if (cols == 2 * l) {
-                c00.reinterpretAsInts().intoArray(y, y0);
-                c01.reinterpretAsInts().intoArray(y, y0 + l);
-                c10.reinterpretAsInts().intoArray(y, y0 + out);
-                c11.reinterpretAsInts().intoArray(y, y0 + out + l);
-                c20.reinterpretAsInts().intoArray(y, y0 + 2 * out);
-                c21.reinterpretAsInts().intoArray(y, y0 + 2 * out + l);
-                c30.reinterpretAsInts().intoArray(y, y0 + 3 * out);
-                c31.reinterpretAsInts().intoArray(y, y0 + 3 * out + l);
-            } else { // a partial panel: through the scratch rows (no helper method: vectors must not leave this one)
-                c00.reinterpretAsInts().intoArray(tmp, 0);
-                c01.reinterpretAsInts().intoArray(tmp, l);
-                c10.reinterpretAsInts().intoArray(tmp, 2 * l);
-                c11.reinterpretAsInts().intoArray(tmp, 3 * l);
-                c20.reinterpretAsInts().intoArray(tmp, 4 * l);
-                c21.reinterpretAsInts().intoArray(tmp, 5 * l);
-                c30.reinterpretAsInts().intoArray(tmp, 6 * l);
-                c31.reinterpretAsInts().intoArray(tmp, 7 * l);
-                for (int r = 0; r < 4; r++) {
-                    System.arraycopy(tmp, 2 * l * r, y, y0 + r * out, cols);
-                }
-            }
-        }
-    }
-
     /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 8) of a two-vector float panel. */
-    private static void floatTwo8(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, int[] y,
-            int out, int cols) {
+    private static void floatTwo8(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y,
+            int out, int cols, boolean relu) {
         int l = F.length();
-        int[] tmp = new int[2 * l];
+        byte[] tmp = new byte[64 * l];
         FloatVector b0 = FloatVector.fromArray(F, pb, j0);
         FloatVector b1 = FloatVector.fromArray(F, pb, j0 + l);
         for (int i = i0; i < i1; i += 8) {
@@ -219,58 +166,79 @@ final class VectorForward {
                 c70 = w0.fma(a, c70);
                 c71 = w1.fma(a, c71);
             }
-            int y0 = i * out + j0;
-            if (cols == 2 * l) {
-                c00.reinterpretAsInts().intoArray(y, y0);
-                c01.reinterpretAsInts().intoArray(y, y0 + l);
-                c10.reinterpretAsInts().intoArray(y, y0 + out);
-                c11.reinterpretAsInts().intoArray(y, y0 + out + l);
-                c20.reinterpretAsInts().intoArray(y, y0 + 2 * out);
-                c21.reinterpretAsInts().intoArray(y, y0 + 2 * out + l);
-                c30.reinterpretAsInts().intoArray(y, y0 + 3 * out);
-                c31.reinterpretAsInts().intoArray(y, y0 + 3 * out + l);
-                c40.reinterpretAsInts().intoArray(y, y0 + 4 * out);
-                c41.reinterpretAsInts().intoArray(y, y0 + 4 * out + l);
-                c50.reinterpretAsInts().intoArray(y, y0 + 5 * out);
-                c51.reinterpretAsInts().intoArray(y, y0 + 5 * out + l);
-                c60.reinterpretAsInts().intoArray(y, y0 + 6 * out);
-                c61.reinterpretAsInts().intoArray(y, y0 + 6 * out + l);
-                c70.reinterpretAsInts().intoArray(y, y0 + 7 * out);
-                c71.reinterpretAsInts().intoArray(y, y0 + 7 * out + l);
-            } else { // a partial panel: through a scratch row (no helper method: vectors must not leave this one)
-                c00.reinterpretAsInts().intoArray(tmp, 0);
-                c01.reinterpretAsInts().intoArray(tmp, l);
-                System.arraycopy(tmp, 0, y, y0, cols);
-                c10.reinterpretAsInts().intoArray(tmp, 0);
-                c11.reinterpretAsInts().intoArray(tmp, l);
-                System.arraycopy(tmp, 0, y, y0 + out, cols);
-                c20.reinterpretAsInts().intoArray(tmp, 0);
-                c21.reinterpretAsInts().intoArray(tmp, l);
-                System.arraycopy(tmp, 0, y, y0 + 2 * out, cols);
-                c30.reinterpretAsInts().intoArray(tmp, 0);
-                c31.reinterpretAsInts().intoArray(tmp, l);
-                System.arraycopy(tmp, 0, y, y0 + 3 * out, cols);
-                c40.reinterpretAsInts().intoArray(tmp, 0);
-                c41.reinterpretAsInts().intoArray(tmp, l);
-                System.arraycopy(tmp, 0, y, y0 + 4 * out, cols);
-                c50.reinterpretAsInts().intoArray(tmp, 0);
-                c51.reinterpretAsInts().intoArray(tmp, l);
-                System.arraycopy(tmp, 0, y, y0 + 5 * out, cols);
-                c60.reinterpretAsInts().intoArray(tmp, 0);
-                c61.reinterpretAsInts().intoArray(tmp, l);
-                System.arraycopy(tmp, 0, y, y0 + 6 * out, cols);
-                c70.reinterpretAsInts().intoArray(tmp, 0);
-                c71.reinterpretAsInts().intoArray(tmp, l);
-                System.arraycopy(tmp, 0, y, y0 + 7 * out, cols);
+            c00.intoByteArray(tmp, 0, ORDER);
+            c01.intoByteArray(tmp, 4 * l, ORDER);
+            c10.intoByteArray(tmp, 8 * l, ORDER);
+            c11.intoByteArray(tmp, 12 * l, ORDER);
+            c20.intoByteArray(tmp, 16 * l, ORDER);
+            c21.intoByteArray(tmp, 20 * l, ORDER);
+            c30.intoByteArray(tmp, 24 * l, ORDER);
+            c31.intoByteArray(tmp, 28 * l, ORDER);
+            c40.intoByteArray(tmp, 32 * l, ORDER);
+            c41.intoByteArray(tmp, 36 * l, ORDER);
+            c50.intoByteArray(tmp, 40 * l, ORDER);
+            c51.intoByteArray(tmp, 44 * l, ORDER);
+            c60.intoByteArray(tmp, 48 * l, ORDER);
+            c61.intoByteArray(tmp, 52 * l, ORDER);
+            c70.intoByteArray(tmp, 56 * l, ORDER);
+            c71.intoByteArray(tmp, 60 * l, ORDER);
+            unpack(tmp, 8, 2 * l, y, i * out + j0, out, cols, relu);
+        }
+    }
+
+    /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 4) of a two-vector float panel. */
+    private static void floatTwo4(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y,
+            int out, int cols, boolean relu) {
+        int l = F.length();
+        byte[] tmp = new byte[32 * l];
+        FloatVector b0 = FloatVector.fromArray(F, pb, j0);
+        FloatVector b1 = FloatVector.fromArray(F, pb, j0 + l);
+        for (int i = i0; i < i1; i += 4) {
+            int x0 = i * in;
+            int x1 = x0 + in;
+            int x2 = x1 + in;
+            int x3 = x2 + in;
+            FloatVector c00 = b0;
+            FloatVector c01 = b1;
+            FloatVector c10 = b0;
+            FloatVector c11 = b1;
+            FloatVector c20 = b0;
+            FloatVector c21 = b1;
+            FloatVector c30 = b0;
+            FloatVector c31 = b1;
+            for (int t = 0, p = po; t < in; t++, p += 2 * l) {
+                FloatVector w0 = FloatVector.fromArray(F, pw, p);
+                FloatVector w1 = FloatVector.fromArray(F, pw, p + l);
+                FloatVector a = FloatVector.broadcast(F, x[x0 + t]);
+                c00 = w0.fma(a, c00);
+                c01 = w1.fma(a, c01);
+                a = FloatVector.broadcast(F, x[x1 + t]);
+                c10 = w0.fma(a, c10);
+                c11 = w1.fma(a, c11);
+                a = FloatVector.broadcast(F, x[x2 + t]);
+                c20 = w0.fma(a, c20);
+                c21 = w1.fma(a, c21);
+                a = FloatVector.broadcast(F, x[x3 + t]);
+                c30 = w0.fma(a, c30);
+                c31 = w1.fma(a, c31);
             }
+            c00.intoByteArray(tmp, 0, ORDER);
+            c01.intoByteArray(tmp, 4 * l, ORDER);
+            c10.intoByteArray(tmp, 8 * l, ORDER);
+            c11.intoByteArray(tmp, 12 * l, ORDER);
+            c20.intoByteArray(tmp, 16 * l, ORDER);
+            c21.intoByteArray(tmp, 20 * l, ORDER);
+            c30.intoByteArray(tmp, 24 * l, ORDER);
+            c31.intoByteArray(tmp, 28 * l, ORDER);
+            unpack(tmp, 4, 2 * l, y, i * out + j0, out, cols, relu);
         }
     }
 
     /** Rows {@code [i0, i1)} of a two-vector float panel, one at a time. */
-    private static void floatTwo1(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, int[] y, int out,
-            int cols) {
+    private static void floatTwo1(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y,
+            int out, int cols, boolean relu) {
         int l = F.length();
-        int[] tmp = new int[8 * l];
+        byte[] tmp = new byte[8 * l];
         FloatVector b0 = FloatVector.fromArray(F, pb, j0);
         FloatVector b1 = FloatVector.fromArray(F, pb, j0 + l);
         for (int i = i0; i < i1; i++) {
@@ -282,50 +250,93 @@ final class VectorForward {
                 c0 = FloatVector.fromArray(F, pw, p).fma(a, c0);
                 c1 = FloatVector.fromArray(F, pw, p + l).fma(a, c1);
             }
-            c0.reinterpretAsInts().intoArray(tmp, 0);
-            c1.reinterpretAsInts().intoArray(tmp, l);
-            System.arraycopy(tmp, 0, y, i * out + j0, cols);
+            c0.intoByteArray(tmp, 0, ORDER);
+            c1.intoByteArray(tmp, 4 * l, ORDER);
+            unpack(tmp, 1, 2 * l, y, i * out + j0, out, cols, relu);
+        }
+    }
+
+    /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 8) of a one-vector float panel. */
+    private static void floatOne8(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y,
+            int out, int cols, boolean relu) {
+        int l = F.length();
+        byte[] tmp = new byte[32 * l];
+        FloatVector b0 = FloatVector.fromArray(F, pb, j0);
+        for (int i = i0; i < i1; i += 8) {
+            int x0 = i * in;
+            int x1 = x0 + in;
+            int x2 = x1 + in;
+            int x3 = x2 + in;
+            int x4 = x3 + in;
+            int x5 = x4 + in;
+            int x6 = x5 + in;
+            int x7 = x6 + in;
+            FloatVector c00 = b0;
+            FloatVector c10 = b0;
+            FloatVector c20 = b0;
+            FloatVector c30 = b0;
+            FloatVector c40 = b0;
+            FloatVector c50 = b0;
+            FloatVector c60 = b0;
+            FloatVector c70 = b0;
+            for (int t = 0, p = po; t < in; t++, p += l) {
+                FloatVector w0 = FloatVector.fromArray(F, pw, p);
+                c00 = w0.fma(FloatVector.broadcast(F, x[x0 + t]), c00);
+                c10 = w0.fma(FloatVector.broadcast(F, x[x1 + t]), c10);
+                c20 = w0.fma(FloatVector.broadcast(F, x[x2 + t]), c20);
+                c30 = w0.fma(FloatVector.broadcast(F, x[x3 + t]), c30);
+                c40 = w0.fma(FloatVector.broadcast(F, x[x4 + t]), c40);
+                c50 = w0.fma(FloatVector.broadcast(F, x[x5 + t]), c50);
+                c60 = w0.fma(FloatVector.broadcast(F, x[x6 + t]), c60);
+                c70 = w0.fma(FloatVector.broadcast(F, x[x7 + t]), c70);
+            }
+            c00.intoByteArray(tmp, 0, ORDER);
+            c10.intoByteArray(tmp, 4 * l, ORDER);
+            c20.intoByteArray(tmp, 8 * l, ORDER);
+            c30.intoByteArray(tmp, 12 * l, ORDER);
+            c40.intoByteArray(tmp, 16 * l, ORDER);
+            c50.intoByteArray(tmp, 20 * l, ORDER);
+            c60.intoByteArray(tmp, 24 * l, ORDER);
+            c70.intoByteArray(tmp, 28 * l, ORDER);
+            unpack(tmp, 8, l, y, i * out + j0, out, cols, relu);
         }
     }
 
     /** Rows {@code [i0, i1)} ({@code i1 - i0} a multiple of 4) of a one-vector float panel. */
-    private static void floatOne4(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, int[] y, int out,
-            int cols) {
+    private static void floatOne4(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y,
+            int out, int cols, boolean relu) {
         int l = F.length();
-        int[] tmp = new int[8 * l];
+        byte[] tmp = new byte[16 * l];
         FloatVector b0 = FloatVector.fromArray(F, pb, j0);
         for (int i = i0; i < i1; i += 4) {
             int x0 = i * in;
             int x1 = x0 + in;
             int x2 = x1 + in;
             int x3 = x2 + in;
-            FloatVector c0 = b0;
-            FloatVector c1 = b0;
-            FloatVector c2 = b0;
-            FloatVector c3 = b0;
+            FloatVector c00 = b0;
+            FloatVector c10 = b0;
+            FloatVector c20 = b0;
+            FloatVector c30 = b0;
             for (int t = 0, p = po; t < in; t++, p += l) {
                 FloatVector w0 = FloatVector.fromArray(F, pw, p);
-                c0 = w0.fma(FloatVector.broadcast(F, x[x0 + t]), c0);
-                c1 = w0.fma(FloatVector.broadcast(F, x[x1 + t]), c1);
-                c2 = w0.fma(FloatVector.broadcast(F, x[x2 + t]), c2);
-                c3 = w0.fma(FloatVector.broadcast(F, x[x3 + t]), c3);
+                c00 = w0.fma(FloatVector.broadcast(F, x[x0 + t]), c00);
+                c10 = w0.fma(FloatVector.broadcast(F, x[x1 + t]), c10);
+                c20 = w0.fma(FloatVector.broadcast(F, x[x2 + t]), c20);
+                c30 = w0.fma(FloatVector.broadcast(F, x[x3 + t]), c30);
             }
-            c0.reinterpretAsInts().intoArray(tmp, 0);
-            c1.reinterpretAsInts().intoArray(tmp, l);
-            c2.reinterpretAsInts().intoArray(tmp, 2 * l);
-            c3.reinterpretAsInts().intoArray(tmp, 3 * l);
-            int y0 = i * out + j0;
-            for (int r = 0; r < 4; r++) {
-                System.arraycopy(tmp, l * r, y, y0 + r * out, cols);
-            }
+            c00.intoByteArray(tmp, 0, ORDER);
+            c10.intoByteArray(tmp, 4 * l, ORDER);
+            c20.intoByteArray(tmp, 8 * l, ORDER);
+            c30.intoByteArray(tmp, 12 * l, ORDER);
+            unpack(tmp, 4, l, y, i * out + j0, out, cols, relu);
         }
     }
 
     /** Rows {@code [i0, i1)} of a one-vector float panel, one at a time. */
-    private static void floatOne1(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, int[] y, int out,
-            int cols) {
+    private static void floatOne1(float[] x, int i0, int i1, int in, float[] pw, int po, float[] pb, int j0, float[] y,
+            int out, int cols, boolean relu) {
         int l = F.length();
-        int[] tmp = new int[8 * l];
+        byte[] tmp = new byte[4 * l];
         FloatVector b0 = FloatVector.fromArray(F, pb, j0);
         for (int i = i0; i < i1; i++) {
             int x0 = i * in;
@@ -333,8 +344,40 @@ final class VectorForward {
             for (int t = 0, p = po; t < in; t++, p += l) {
                 c0 = FloatVector.fromArray(F, pw, p).fma(FloatVector.broadcast(F, x[x0 + t]), c0);
             }
-            c0.reinterpretAsInts().intoArray(tmp, 0);
-            System.arraycopy(tmp, 0, y, i * out + j0, cols);
+            c0.intoByteArray(tmp, 0, ORDER);
+            unpack(tmp, 1, l, y, i * out + j0, out, cols, relu);
+        }
+    }
+
+    /**
+     * The first {@code cols} results of each of {@code rows} scratch rows ({@code stride} floats apart, in the
+     * platform's byte order) into rows of {@code y} from {@code y0} ({@code out} apart), with {@code relu} as
+     * {@code Math.max(v, 0)} (the vector {@code MAX} is {@code Math.max}, NaN and signed zeros included), while the
+     * block is in the level-1 cache. Loaded and stored as 256-bit vectors, the shape of the library's other float
+     * stores (see {@link #F}); the last {@code cols % 8} of a row one at a time.
+     */
+    private static void unpack(byte[] tmp, int rows, int stride, float[] y, int y0, int out, int cols, boolean relu) {
+        int l = C.length();
+        int vend = cols - cols % l;
+        for (int r = 0; r < rows; r++) {
+            int s = 4 * r * stride;
+            int d = y0 + r * out;
+            if (relu) {
+                for (int j = 0; j < vend; j += l) {
+                    FloatVector.fromByteArray(C, tmp, s + 4 * j, ORDER).max(0f).intoArray(y, d + j);
+                }
+            } else {
+                for (int j = 0; j < vend; j += l) {
+                    FloatVector.fromByteArray(C, tmp, s + 4 * j, ORDER).intoArray(y, d + j);
+                }
+            }
+            for (int j = vend; j < cols; j++) {
+                int k = s + 4 * j;
+                float v = Float.intBitsToFloat(ORDER == ByteOrder.LITTLE_ENDIAN
+                        ? (tmp[k] & 0xFF) | (tmp[k + 1] & 0xFF) << 8 | (tmp[k + 2] & 0xFF) << 16 | tmp[k + 3] << 24
+                        : tmp[k] << 24 | (tmp[k + 1] & 0xFF) << 16 | (tmp[k + 2] & 0xFF) << 8 | (tmp[k + 3] & 0xFF));
+                y[d + j] = relu ? Math.max(v, 0f) : v;
+            }
         }
     }
 

@@ -166,6 +166,37 @@ class ForwardKernelsTest {
     }
 
     @Test
+    void wideLayersKeepNanAndSignedZerosThroughTheRelu() {
+        // Source: Math.max's definition (NaN if either argument is NaN; 0.0 above -0.0), against the reference loop,
+        // on a layer wide enough for whole vectors of outputs and a remainder (43 = 2 * 16 + 11 columns), 9 samples.
+        int in = 3;
+        int out = 43;
+        int n = 9;
+        float[] w = new float[out * in];
+        float[] b = new float[out];
+        for (int o = 0; o < out; o++) {
+            w[o * in] = o % 3 == 0 ? -1f : 1f;
+            w[o * in + 1] = 0f;
+            w[o * in + 2] = o % 2 == 0 ? 1f : -1f;
+            b[o] = o % 5 == 0 ? -0.0f : 0.25f * (o - 20);
+        }
+        float[] x = new float[n * in];
+        for (int s = 0; s < n; s++) {
+            x[s * in] = s == 2 ? Float.NaN : s == 4 ? Float.NEGATIVE_INFINITY : s == 6 ? -0.0f : s - 4f;
+            x[s * in + 1] = 7f;
+            x[s * in + 2] = s == 6 ? -0.0f : 0.5f * s;
+        }
+        float[] want = ForwardKernels.referenceAffine(x, n, w, b, in, out);
+        for (int i = 0; i < want.length; i++) {
+            want[i] = Math.max(0f, want[i]);
+        }
+        ForwardKernels.FloatPanels p = ForwardKernels.FloatPanels.of(w, b, out, in);
+        assertArrayEquals(want, p.affineRelu(x, n));
+        assertArrayEquals(want, p.affine(x, n, true, false));
+        assertTrue(Float.isNaN(want[2 * out + 20]), "sample 2's NaN reaches the outputs");
+    }
+
+    @Test
     void badShapesAreNamed() {
         IllegalArgumentException e = assertThrows(IllegalArgumentException.class,
                 () -> ForwardKernels.FloatPanels.of(new float[5], new float[2], 2, 3));
