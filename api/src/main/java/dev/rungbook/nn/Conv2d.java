@@ -201,7 +201,9 @@ public final class Conv2d implements WeightedLayer {
                             java.util.Arrays.fill(col, at, at + ow, 0f);
                             continue;
                         }
-                        java.util.Arrays.fill(col, at, at + jlo, 0f);
+                        for (int j = 0; j < jlo; j++) { // the padded edges: a column or two, a loop beats a call
+                            col[at + j] = 0f;
+                        }
                         int src = (plane + yi) * wd + jlo * stride + v - padding;
                         if (stride == 1) {
                             System.arraycopy(x, src, col, at + jlo, jhi - jlo);
@@ -210,7 +212,9 @@ public final class Conv2d implements WeightedLayer {
                                 col[at + j] = x[src];
                             }
                         }
-                        java.util.Arrays.fill(col, at + jhi, at + ow, 0f);
+                        for (int j = jhi; j < ow; j++) {
+                            col[at + j] = 0f;
+                        }
                     }
                 }
             }

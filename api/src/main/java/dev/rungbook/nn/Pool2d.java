@@ -68,6 +68,9 @@ public final class Pool2d implements Layer {
 
     /** Pools {@code x}; for max pooling records the winning input index per output in {@code argmax} if not null. */
     private float[] pool(float[] x, int[] in, int[] out, int[] argmax) {
+        if (max && argmax == null) {
+            return maxOnly(x, in, out);
+        }
         int planes = in[0] * in[1];
         int h = in[2];
         int w = in[3];
@@ -97,6 +100,52 @@ public final class Pool2d implements Layer {
                     if (argmax != null) {
                         argmax[o] = best;
                     }
+                }
+            }
+        }
+        return y;
+    }
+
+    /**
+     * {@link #pool} for max pooling without the winners: the same values (each window's first element, then every
+     * larger one), with a conditional move rather than a branch per element (on real activations the comparison goes
+     * either way and a branch is mispredicted about half the time).
+     */
+    private float[] maxOnly(float[] x, int[] in, int[] out) {
+        int planes = in[0] * in[1];
+        int h = in[2];
+        int w = in[3];
+        int oh = out[2];
+        int ow = out[3];
+        float[] y = new float[planes * oh * ow];
+        for (int pl = 0; pl < planes; pl++) {
+            for (int i = 0; i < oh; i++) {
+                int o = (pl * oh + i) * ow;
+                int top = (pl * h + i * stride) * w;
+                if (kernel == 2) { // the common window, written out: four loads and three moves per output
+                    for (int j = 0; j < ow; j++) {
+                        int c = top + j * stride;
+                        float acc = x[c];
+                        float b = x[c + 1];
+                        acc = b > acc ? b : acc;
+                        b = x[c + w];
+                        acc = b > acc ? b : acc;
+                        b = x[c + w + 1];
+                        y[o + j] = b > acc ? b : acc;
+                    }
+                    continue;
+                }
+                for (int j = 0; j < ow; j++) {
+                    int corner = top + j * stride;
+                    float acc = x[corner];
+                    for (int u = 0; u < kernel; u++) {
+                        int row = corner + u * w;
+                        for (int v = 0; v < kernel; v++) {
+                            float xv = x[row + v];
+                            acc = xv > acc ? xv : acc;
+                        }
+                    }
+                    y[o + j] = acc;
                 }
             }
         }

@@ -140,6 +140,14 @@ class LayersTest {
         assertArrayEquals(new float[] {6, 8, 14, 16}, Pool2d.max("p", 2, 2).forward(x).toFloatArray());
         assertArrayEquals(new float[] {3.5f, 5.5f, 11.5f, 13.5f}, Pool2d.average("p", 2, 2).forward(x).toFloatArray());
         assertArrayEquals(new float[] {11, 12, 15, 16}, Pool2d.max("p", 3, 1).forward(x).toFloatArray());
+        // Worked by hand: a window's first element, then each larger one, so a NaN counts only when it comes first;
+        // the training pass (which also records the winners) gives the same values.
+        Tensor odd = Tensor.of(new float[] {Float.NaN, 1, 1, Float.NaN, 2, 3, 2, 0, -0.0f, -1, 5, 5, -2, -0.0f, 5, 4},
+                1, 1, 4, 4);
+        float[] pooled = Pool2d.max("p", 2, 2).forward(odd).toFloatArray();
+        assertArrayEquals(new float[] {Float.NaN, 2, -0.0f, 5}, pooled);
+        assertArrayEquals(pooled, Pool2d.max("p", 2, 2).node().forward(new Node.Act(odd.toFloatArray(),
+                odd.shape()), false).v());
         Tensor f = new Flatten("f").forward(random(3, 2, 3, 2, 2));
         assertArrayEquals(new int[] {2, 12}, f.shape());
         assertArrayEquals(new float[] {0, 0, 3, 6, 6}, new Relu6("r").forward(Tensor.of(new float[] {-2, 0, 3, 6,
