@@ -68,15 +68,16 @@ public final class Pool2d implements Layer {
 
     /** Pools {@code x}; for max pooling records the winning input index per output in {@code argmax} if not null. */
     private float[] pool(float[] x, int[] in, int[] out, int[] argmax) {
-        if (max && argmax == null) {
-            return maxOnly(x, in, out);
-        }
         int planes = in[0] * in[1];
         int h = in[2];
         int w = in[3];
         int oh = out[2];
         int ow = out[3];
         float[] y = new float[planes * oh * ow];
+        if (max && argmax == null) {
+            maxOnly(x, planes, h, w, oh, ow, y);
+            return y;
+        }
         float inv = 1f / (kernel * kernel);
         for (int pl = 0; pl < planes; pl++) {
             for (int i = 0; i < oh; i++) {
@@ -111,13 +112,7 @@ public final class Pool2d implements Layer {
      * larger one), with a conditional move rather than a branch per element (on real activations the comparison goes
      * either way and a branch is mispredicted about half the time).
      */
-    private float[] maxOnly(float[] x, int[] in, int[] out) {
-        int planes = in[0] * in[1];
-        int h = in[2];
-        int w = in[3];
-        int oh = out[2];
-        int ow = out[3];
-        float[] y = new float[planes * oh * ow];
+    private void maxOnly(float[] x, int planes, int h, int w, int oh, int ow, float[] y) {
         for (int pl = 0; pl < planes; pl++) {
             for (int i = 0; i < oh; i++) {
                 int o = (pl * oh + i) * ow;
@@ -149,7 +144,6 @@ public final class Pool2d implements Layer {
                 }
             }
         }
-        return y;
     }
 
     @Override
