@@ -170,8 +170,9 @@ if cpu:
     lines += quantize_section(
         "## Quantizing a 4096 x 4096 float32 matrix (thread CPU time)",
         "Medians of the benchmark thread's CPU time over interleaved repetitions (QuantizeCpuTime; every case is "
-        "single-threaded; latest run 2026-12-03 on a quiet machine, whose plain copy of the matrix and NumPy job "
-        "took about 1.1-1.6x the times of the earlier sessions' machines and whose plain fused loops ran 1.5x slower than the day before with unchanged code: read the ratios). Used as the headline because on a shared machine "
+        "single-threaded; latest run 2026-12-03 on a quiet machine with no steal time, whose plain copy of the matrix "
+        "and NumPy job took about 1.5x and 1.2x the times of the earlier sessions' machines and whose plain fused "
+        "loops took 1.2x the time of 2026-12-02's run with unchanged code: read the ratios). Used as the headline because on a shared machine "
         "the JMH wall-clock scores below swing by more than their own size. 'Vector API module': a JVM started with "
         "`--add-modules jdk.incubator.vector`, where the min/max reductions and the fused error sums run on the "
         "incubating Vector API with the same results bit for bit. 'General path': the cases that the fused segment "
