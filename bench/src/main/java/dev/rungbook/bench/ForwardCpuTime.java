@@ -1,11 +1,8 @@
 package dev.rungbook.bench;
 
-import java.lang.management.ManagementFactory;
-import java.lang.management.ThreadMXBean;
 import java.nio.file.Files;
 import java.nio.file.Path;
 import java.util.ArrayList;
-import java.util.Arrays;
 import java.util.List;
 import java.util.Locale;
 import java.util.Map;
@@ -147,44 +144,26 @@ public final class ForwardCpuTime {
             return gc[0];
         }));
 
-        ThreadMXBean bean = ManagementFactory.getThreadMXBean();
-        double[][] cpu = new double[cases.size()][reps];
-        double[][] wall = new double[cases.size()][reps];
-        double sink = 0;
-        for (int rep = 0; rep < WARM + reps; rep++) {
-            for (int c = 0; c < cases.size(); c++) {
-                long w0 = System.nanoTime();
-                long t0 = bean.getCurrentThreadCpuTime();
-                sink += cases.get(c).body().getAsDouble();
-                long t1 = bean.getCurrentThreadCpuTime();
-                long w1 = System.nanoTime();
-                if (rep >= WARM) {
-                    cpu[c][rep - WARM] = (t1 - t0) / 1e6;
-                    wall[c][rep - WARM] = (w1 - w0) / 1e6;
-                }
-            }
-        }
+        CpuTimeRuns.Timings times = CpuTimeRuns.interleaved(cases.stream().map(Case::body).toList(), WARM, reps);
         String loadEnd = CpuTimeRuns.loadAverage();
         String env = String.valueOf(System.getenv("OPENBLAS_NUM_THREADS"));
         List<String> rows = new ArrayList<>();
         for (int c = 0; c < cases.size(); c++) {
-            double[] t = cpu[c].clone();
-            double[] w = wall[c].clone();
-            Arrays.sort(t);
-            Arrays.sort(w);
+            double[] t = times.sortedCpu(c);
+            double wallMedian = times.wallMedian(c);
             Case k = cases.get(c);
             double median = t[t.length / 2];
             System.out.printf(Locale.ROOT, "%-28s cpu median %8.3f ms, min %8.3f; wall median %8.3f  %7.2f G op/s%n",
-                    k.name(), median, t[0], w[w.length / 2], 2.0 * k.macs() / median / 1e6);
+                    k.name(), median, t[0], wallMedian, 2.0 * k.macs() / median / 1e6);
             rows.add(String.format(Locale.ROOT, "{\"benchmark\": \"dev.rungbook.bench.ForwardCpuTime.%s\", "
                     + "\"mode\": \"cpu-time median\", \"threads\": 1, \"primaryMetric\": {\"score\": %.4f, "
                     + "\"scoreUnit\": \"ms/op\", \"min\": %.4f, \"wallMedian\": %.4f, \"repetitions\": %d}, "
                     + "\"macs\": %d, \"loadStart\": \"%s\", \"loadEnd\": \"%s\", \"vectorModule\": %b, "
                     + "\"openblasThreads\": \"%s\", \"linearAlgebra\": \"%s\", \"before\": \"%s\"}", k.name(), median,
-                    t[0], w[w.length / 2], reps, k.macs(), loadStart, loadEnd, CpuTimeRuns.vectorModule(), env,
+                    t[0], wallMedian, reps, k.macs(), loadStart, loadEnd, CpuTimeRuns.vectorModule(), env,
                     la.backend(), before == null ? "" : before.getFileName()));
         }
-        System.out.println("(checksum " + sink + "; load " + loadStart + " -> " + loadEnd + "; vector module "
+        System.out.println("(checksum " + times.sink() + "; load " + loadStart + " -> " + loadEnd + "; vector module "
                 + CpuTimeRuns.vectorModule() + "; OPENBLAS_NUM_THREADS=" + env + "; " + la.backend() + ")");
         CpuTimeRuns.writeRows(outFile, rows);
     }

@@ -3,11 +3,8 @@ package dev.rungbook.bench;
 import dev.rungbook.quant.Quantizer;
 import dev.rungbook.tensor.Tensor;
 import java.io.IOException;
-import java.lang.management.ManagementFactory;
-import java.lang.management.ThreadMXBean;
 import java.nio.file.Path;
 import java.util.ArrayList;
-import java.util.Arrays;
 import java.util.List;
 import java.util.Locale;
 import java.util.SplittableRandom;
@@ -119,24 +116,11 @@ public final class QuantizeCpuTime {
                 }
             }));
         }
-        ThreadMXBean bean = ManagementFactory.getThreadMXBean();
-        double[][] times = new double[all.size()][reps];
-        double sink = 0;
-        for (int rep = 0; rep < WARM + reps; rep++) {
-            for (int c = 0; c < all.size(); c++) {
-                long t0 = bean.getCurrentThreadCpuTime();
-                sink += all.get(c).body().getAsDouble();
-                double ms = (bean.getCurrentThreadCpuTime() - t0) / 1e6;
-                if (rep >= WARM) {
-                    times[c][rep - WARM] = ms;
-                }
-            }
-        }
+        CpuTimeRuns.Timings times = CpuTimeRuns.interleaved(all.stream().map(Case::body).toList(), WARM, reps);
         List<String> rows = new ArrayList<>();
         List<String> generalRows = new ArrayList<>();
         for (int c = 0; c < all.size(); c++) {
-            double[] t = times[c].clone();
-            Arrays.sort(t);
+            double[] t = times.sortedCpu(c);
             double median = t[t.length / 2];
             boolean general = c >= cases.size();
             System.out.printf(Locale.ROOT, "%-30s %10.1f ms (cpu, median of %d; min %.1f, max %.1f)%n",
@@ -146,7 +130,7 @@ public final class QuantizeCpuTime {
                     + "{\"score\": %.3f, \"scoreUnit\": \"ms/op\", \"min\": %.3f, \"max\": %.3f, \"repetitions\": %d}}",
                     all.get(c).name(), median, t[0], t[t.length - 1], reps));
         }
-        System.out.println("(checksum " + sink + ", vector API reductions: " + vectorised() + ")");
+        System.out.println("(checksum " + times.sink() + ", vector API reductions: " + vectorised() + ")");
         CpuTimeRuns.writeRows(Path.of(args[0]), rows);
         if (before != null) {
             CpuTimeRuns.writeRows(before, generalRows);

@@ -1,7 +1,5 @@
 package dev.rungbook.bench;
 
-import java.lang.management.ManagementFactory;
-import java.lang.management.ThreadMXBean;
 import java.nio.file.Path;
 import java.util.ArrayList;
 import java.util.Arrays;
@@ -75,42 +73,24 @@ public final class SegmentCpuTime {
             }
             add(cases, subject, "Before");
         }
-        ThreadMXBean bean = ManagementFactory.getThreadMXBean();
-        double[][] cpu = new double[cases.size()][reps];
-        double[][] wall = new double[cases.size()][reps];
-        double sink = 0;
-        for (int rep = 0; rep < WARM + reps; rep++) {
-            for (int c = 0; c < cases.size(); c++) {
-                long w0 = System.nanoTime();
-                long t0 = bean.getCurrentThreadCpuTime();
-                sink += cases.get(c).body().getAsDouble();
-                long t1 = bean.getCurrentThreadCpuTime();
-                long w1 = System.nanoTime();
-                if (rep >= WARM) {
-                    cpu[c][rep - WARM] = (t1 - t0) / 1e6;
-                    wall[c][rep - WARM] = (w1 - w0) / 1e6;
-                }
-            }
-        }
+        CpuTimeRuns.Timings times = CpuTimeRuns.interleaved(cases.stream().map(Case::body).toList(), WARM, reps);
         String loadEnd = CpuTimeRuns.loadAverage();
         List<String> rows = new ArrayList<>();
         for (int c = 0; c < cases.size(); c++) {
-            double[] t = cpu[c].clone();
-            double[] w = wall[c].clone();
-            Arrays.sort(t);
-            Arrays.sort(w);
+            double[] t = times.sortedCpu(c);
+            double wallMedian = times.wallMedian(c);
             Case k = cases.get(c);
             double median = t[t.length / 2];
             System.out.printf(Locale.ROOT, "%-32s cpu median %8.2f ms, min %8.2f; wall median %8.2f%n", k.name(),
-                    median, t[0], w[w.length / 2]);
+                    median, t[0], wallMedian);
             rows.add(String.format(Locale.ROOT, "{\"benchmark\": \"dev.rungbook.bench.SegmentCpuTime.%s\", "
                     + "\"mode\": \"cpu-time median\", \"threads\": 1, \"primaryMetric\": {\"score\": %.3f, "
                     + "\"scoreUnit\": \"ms/op\", \"min\": %.3f, \"wallMedian\": %.3f, \"repetitions\": %d}, "
                     + "\"loadStart\": \"%s\", \"loadEnd\": \"%s\", \"vectorModule\": %b, \"before\": \"%s\"}",
-                    k.name(), median, t[0], w[w.length / 2], reps, loadStart, loadEnd, CpuTimeRuns.vectorModule(),
+                    k.name(), median, t[0], wallMedian, reps, loadStart, loadEnd, CpuTimeRuns.vectorModule(),
                     before == null ? "" : before.getFileName()));
         }
-        System.out.println("(checksum " + sink + "; load " + loadStart + " -> " + loadEnd + "; vector module "
+        System.out.println("(checksum " + times.sink() + "; load " + loadStart + " -> " + loadEnd + "; vector module "
                 + CpuTimeRuns.vectorModule() + ")");
         CpuTimeRuns.writeRows(outFile, rows);
     }
