@@ -386,6 +386,12 @@ public final class SegmentKernels {
          */
         final int[] vectorCodes;
         final float[] vectorLevels;
+        /**
+         * The same buckets as one 64-bit entry each, for a kernel that reads a bucket with one gather of 64-bit lanes
+         * rather than two of 32-bit lanes: the code in the high 32 bits (so a bucket with code -1 has a negative
+         * entry), the bits of its level in the low 32.
+         */
+        final long[] vectorEntries;
 
         private Levels(float[] levels, double[] decisions) {
             this.levels = levels.clone();
@@ -421,8 +427,11 @@ public final class SegmentKernels {
                     vectorCodes[b] = -1;
                 }
             }
+            vectorEntries = new long[vectorCodes.length];
             for (int b = 0; b < vectorCodes.length; b++) {
                 vectorLevels[b] = vectorCodes[b] < 0 ? 0f : levels[vectorCodes[b]];
+                vectorEntries[b] = ((long) vectorCodes[b] << 32)
+                        | (Float.floatToRawIntBits(vectorLevels[b]) & 0xFFFF_FFFFL);
             }
         }
 

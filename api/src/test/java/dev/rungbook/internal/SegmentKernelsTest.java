@@ -351,7 +351,9 @@ class SegmentKernelsTest {
             SegmentKernels.scalarLevels(w, off, count, m, scales, s0, table, deq, b, y);
             int nextCount = r.nextInt(count + 1);
             float[] ahead = new float[count];
-            redone += VectorSegments.levels(w, off, count, m, scales, s0, table, vdeq, vb, nextCount, ahead);
+            // both gather forms: eight 64-bit entries (with AVX-512) and two gathers of 32-bit ones (elsewhere)
+            boolean wide = trial / 8 % 2 == 0;
+            redone += VectorSegments.levels(w, off, count, m, scales, s0, table, vdeq, vb, nextCount, ahead, wide);
             assertAheadIsMaxAbs(w, off + count * m, nextCount, m, ahead, "trial " + trial);
             for (int i = off; i < off + count * m; i++) {
                 float sc = scales[s0 + (i - off) / m];
@@ -362,7 +364,7 @@ class SegmentKernelsTest {
                 for (int j = 0; j < 15; j++) {
                     want += ((double) lv[j] + lv[j + 1]) / 2 < q ? 1 : 0;
                 }
-                String at = "trial " + trial + " x " + w[i] + " scale " + sc;
+                String at = "trial " + trial + (wide ? " (64-bit gather)" : "") + " x " + w[i] + " scale " + sc;
                 assertEquals(want, b[i], at);
                 assertEquals(b[i], vb[i], at);
                 assertEquals(Float.floatToRawIntBits(sc * lv[want]), Float.floatToRawIntBits(deq[i]), at);
@@ -391,7 +393,12 @@ class SegmentKernelsTest {
                 // Source: the definition, the number of midpoints (in double) strictly below the quotient.
                 assertEquals(SegmentKernels.count(table.mids, yv), code, "y " + yv);
                 assertEquals(lv[code], table.vectorLevels[b]);
+                // the one-gather table holds the same code and level
+                assertEquals(code, (int) (table.vectorEntries[b] >> 32));
+                assertEquals(Float.floatToRawIntBits(lv[code]), (int) table.vectorEntries[b]);
                 checked++;
+            } else {
+                assertTrue(table.vectorEntries[b] < 0, "a bucket the double count decides has a negative entry");
             }
         }
         assertTrue(checked > 900_000, "the random quotients' buckets mostly hold one code: " + checked);
