@@ -427,12 +427,74 @@ public final class SegmentKernels {
                     vectorCodes[b] = -1;
                 }
             }
+            int[][] perm = permutationTables(levels, mids);
+            permBase = perm == null ? null : perm[0];
+            permThreshold = perm == null ? null : perm[1];
+            permLevels = perm == null ? null : perm[2];
             vectorEntries = new long[vectorCodes.length];
             for (int b = 0; b < vectorCodes.length; b++) {
                 vectorLevels[b] = vectorCodes[b] < 0 ? 0f : levels[vectorCodes[b]];
                 vectorEntries[b] = ((long) vectorCodes[b] << 32)
                         | (Float.floatToRawIntBits(vectorLevels[b]) & 0xFFFF_FFFFL);
             }
+        }
+
+        /**
+         * For {@link VectorSegments}' sixteen-lane kernel, or {@code null} where it does not apply (more than 16
+         * levels, or two decision points near one of its buckets). That kernel never forms the float quotient: it
+         * takes {@code u = x * r} with {@code r = fl(1 / s)} (so {@code |u - x / s| <= 2^-24} for {@code |x / s| <= 1})
+         * and the bucket {@code b = rint(x * fl(15 * r) + 15)} (0..30, one fused multiply-add), whose quotients all
+         * lie within {@link #permInterval} of it. Per bucket: the number of decision points below every such
+         * quotient ({@code permBase}), the float nearest the one decision point near the bucket
+         * ({@code permThreshold}, as bits; 2.0 where there is none), and the levels' bits padded to 16
+         * ({@code permLevels}). The code is {@code permBase[b] + (fl(t - u) < 0 ? 1 : 0)} with {@code t} the
+         * threshold, except where {@code |fl(t - u)| <= 2^-21}, which the kernel counts in double: beyond that
+         * distance {@code t - u} has the sign of {@code mid - x / s} ({@code |t - mid| <= 2^-25}).
+         */
+        final int[] permBase;
+        final int[] permThreshold;
+        final int[] permLevels;
+
+        /** Entries of the sixteen-lane kernel's bucket tables (buckets 0..30; entry 31 repeats 30). */
+        static final int PERM_BUCKETS = 32;
+
+        /**
+         * The quotients {@code x / s} whose sixteen-lane bucket is {@code b}: those within {@code 2^-16} of
+         * [{@code (b - 0.5) / 15 - 1}, {@code (b + 0.5) / 15 - 1}] include every one (the bucket's argument
+         * {@code x * fl(15 * fl(1 / s)) + 15} is within {@code 15 * 2^-23} of {@code 15 * (x / s + 1)}).
+         */
+        static double[] permInterval(int b) {
+            double slack = 0x1p-16;
+            return new double[] {(b - 0.5) / 15 - 1 - slack, (b + 0.5) / 15 - 1 + slack};
+        }
+
+        /** {@link #permBase}, {@link #permThreshold} and {@link #permLevels}, or null where they do not apply. */
+        private static int[][] permutationTables(float[] levels, double[] mids) {
+            if (levels.length > 16) {
+                return null;
+            }
+            int[] base = new int[PERM_BUCKETS];
+            int[] threshold = new int[PERM_BUCKETS];
+            for (int b = 0; b < PERM_BUCKETS; b++) {
+                double[] q = permInterval(Math.min(b, PERM_BUCKETS - 2));
+                int near = -1;
+                for (int j = 0; j < mids.length; j++) {
+                    if (mids[j] < q[0]) {
+                        base[b]++;
+                    } else if (mids[j] <= q[1]) {
+                        if (near >= 0) {
+                            return null; // two decision points near one bucket
+                        }
+                        near = j;
+                    }
+                }
+                threshold[b] = Float.floatToRawIntBits(near < 0 ? 2f : (float) mids[near]);
+            }
+            int[] lv = new int[16];
+            for (int j = 0; j < 16; j++) {
+                lv[j] = Float.floatToRawIntBits(levels[Math.min(j, levels.length - 1)]);
+            }
+            return new int[][] {base, threshold, lv};
         }
 
         /** Buckets per unit of the quotient in the vector tables ({@code 2 * VECTOR_BUCKETS + 1} cover [-1, 1]). */

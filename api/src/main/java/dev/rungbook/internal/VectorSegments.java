@@ -1,5 +1,7 @@
 package dev.rungbook.internal;
 
+import java.nio.ByteOrder;
+
 import jdk.incubator.vector.ByteVector;
 import jdk.incubator.vector.FloatVector;
 import jdk.incubator.vector.IntVector;
@@ -7,6 +9,7 @@ import jdk.incubator.vector.LongVector;
 import jdk.incubator.vector.ShortVector;
 import jdk.incubator.vector.VectorMask;
 import jdk.incubator.vector.VectorOperators;
+import jdk.incubator.vector.VectorShuffle;
 import jdk.incubator.vector.VectorSpecies;
 
 /**
@@ -198,6 +201,9 @@ final class VectorSegments {
      */
     static int levels(float[] w, int off, int count, int m, float[] scales, int s0, SegmentKernels.Levels table,
             float[] deq, byte[] bytes, int nextCount, float[] nextAmax) {
+        if (WIDE_GATHER && table.permBase != null && m >= WL) {
+            return levels16(w, off, count, m, scales, s0, table, deq, bytes, nextCount, nextAmax);
+        }
         return levels(w, off, count, m, scales, s0, table, deq, bytes, nextCount, nextAmax, WIDE_GATHER);
     }
 
@@ -272,5 +278,113 @@ final class VectorSegments {
             }
         }
         return redo;
+    }
+
+    /** Sixteen-lane vectors of {@link #levels16}: the preferred shape with AVX-512 (see {@link #levels16}). */
+    private static final VectorSpecies<Float> W = FloatVector.SPECIES_512;
+    private static final VectorSpecies<Integer> WI = IntVector.SPECIES_512;
+    private static final VectorSpecies<Byte> WB = ByteVector.SPECIES_128;
+    private static final int WL = W.length();
+    /** Quotient distances from a threshold below which {@link #levels16} counts in double. */
+    private static final int NEAR_BITS = Float.floatToRawIntBits(0x1p-21f);
+    private static final ByteOrder ORDER = ByteOrder.nativeOrder();
+
+    /**
+     * {@link #levels} with sixteen lanes and in-register table lookups (a permutation of one vector by the lanes'
+     * indices) instead of gathers, for tables with {@code Levels.permBase}; segments whose scale's reciprocal would
+     * come near the ends of the float range take the eight-lane kernel. See {@code Levels.permBase} for why the codes
+     * are the definition's.
+     *
+     * <p>The JIT reads one receiver-type profile per Vector API method, and a second vector class in it can turn
+     * every vector of the code relying on it into an object (see {@link VectorForward}). So the 512-bit vectors here
+     * call only what the library's other 512-bit code calls (float broadcast, load, fused multiply-add and
+     * {@code intoByteArray}, as {@link VectorForward}; int load, and, add, shifts, comparisons and blends) and
+     * permutations, which nothing else calls; never the float arithmetic or {@code intoArray} of the 256-bit kernels.
+     * The values go out as bytes into {@code tmp} and move into {@code deq} with 256-bit loads and stores, as
+     * {@link VectorForward}'s do. The gathers of {@link #levels(float[], int, int, int, float[], int,
+     * SegmentKernels.Levels, float[], byte[], int, float[], boolean)} load their 256-bit index vectors with
+     * {@code IntVector.fromArray}, which the integer forward pass calls on 512-bit vectors: measured (2026-12-03, a
+     * JVM that ran the fused NF4 case first), the sample MLP's integer pass took 24-25 ms after the gathers and
+     * 2.3 ms after this kernel (2.4 ms in a JVM that ran no quantizer).
+     */
+    private static int levels16(float[] w, int off, int count, int m, float[] scales, int s0,
+            SegmentKernels.Levels table, float[] deq, byte[] bytes, int nextCount, float[] nextAmax) {
+        maxAbs(w, off + count * m, nextCount, m, nextAmax); // the next run's first pass
+        int vend = m - m % WL;
+        byte[] tmp = new byte[4 * vend];
+        float[] scratch = new float[m];
+        int redo = 0;
+        for (int k = 0; k < count; k++) {
+            int base = off + k * m;
+            float sc = scales[s0 + k];
+            if (!(sc >= 0x1p-100f && sc <= 0x1p100f)) { // a reciprocal near the ends of the float range
+                redo += levels(w, base, 1, m, scales, s0 + k, table, deq, bytes, 0, nextAmax, true);
+                continue;
+            }
+            float r = 1f / sc;
+            int near = segment16(w, base, vend, r, sc, table, tmp, bytes);
+            copyOut(tmp, deq, base, vend);
+            if (near != 0) { // a quotient near a threshold: the segment's codes by the definition
+                redo += SegmentKernels.levels(w, base, vend, sc, table, deq, bytes, scratch);
+            }
+            if (vend < m) {
+                redo += SegmentKernels.levels(w, base + vend, m - vend, sc, table, deq, bytes, scratch);
+            }
+        }
+        return redo;
+    }
+
+    /**
+     * Sixteen lanes of {@link #levels16} from {@code i} ({@code r = fl(1 / sc)}): codes into {@code bytes}, values as
+     * bytes into {@code tmp} from {@code t}; returns 1 if a lane's quotient is near its threshold (the caller redoes
+     * the segment), else 0. Small enough (under the JIT's 325 bytes for hot calls) to be compiled into the loop,
+     * where the tables' loads and the broadcasts leave the loop.
+     */
+    private static int levelLanes16(float[] w, int i, float r, float sc, SegmentKernels.Levels table, byte[] tmp,
+            int t, byte[] bytes) {
+        FloatVector x = FloatVector.fromArray(W, w, i);
+        // MAGIC + rint(x * fl(15 r) + 15), one rounding: the bucket in the low bits
+        IntVector b = (IntVector) x.fma(FloatVector.broadcast(W, 15f * r), FloatVector.broadcast(W, 15f + MAGIC))
+                .reinterpretShape(WI, 0);
+        VectorShuffle<Integer> low = b.and(WL - 1).toShuffle();
+        VectorMask<Integer> upper = b.and(WL).compare(VectorOperators.NE, 0);
+        FloatVector threshold = (FloatVector) lookUp32(table.permThreshold, low, upper).reinterpretShape(W, 0);
+        // fl(threshold - x * r), one rounding; its sign bit counts the threshold
+        IntVector d = (IntVector) x.fma(FloatVector.broadcast(W, -r), threshold).reinterpretShape(WI, 0);
+        IntVector code = lookUp32(table.permBase, low, upper).add(d.lanewise(VectorOperators.LSHR, 31));
+        ((ByteVector) code.convertShape(VectorOperators.I2B, WB, 0)).intoByteArray(bytes, i, ORDER);
+        // fl(level * sc): adding -0 keeps every product, signed zeros included
+        ((FloatVector) IntVector.fromArray(WI, table.permLevels, 0).rearrange(code.toShuffle()).reinterpretShape(W, 0))
+                .fma(FloatVector.broadcast(W, sc), FloatVector.broadcast(W, -0f)).intoByteArray(tmp, t, ORDER);
+        return d.and(0x7FFFFFFF).compare(VectorOperators.LE, NEAR_BITS).anyTrue() ? 1 : 0;
+    }
+
+    /**
+     * {@link #levelLanes16} over {@code vend} values from {@code base}; returns 1 if any lane was near a threshold.
+     * This loop and {@link #copyOut} are methods of their own, compiled apart from {@link #levels16}'s other paths:
+     * measured (2026-12-03), with both loops written in {@link #levels16} the fused NF4 case took 64-98 ms in a JVM
+     * that had run the per-channel int8 kernel first (the JIT's log: the copy's 256-bit store no longer compiled to
+     * a vector store) and 33-35 ms in one that had not; as methods of their own, 34-40 ms either way.
+     */
+    private static int segment16(float[] w, int base, int vend, float r, float sc, SegmentKernels.Levels table,
+            byte[] tmp, byte[] bytes) {
+        int near = 0;
+        for (int j = 0; j < vend; j += WL) {
+            near |= levelLanes16(w, base + j, r, sc, table, tmp, 4 * j, bytes);
+        }
+        return near;
+    }
+
+    /** The {@code n} floats of {@code tmp} (as bytes) into {@code deq} from {@code d}, with 256-bit vectors. */
+    private static void copyOut(byte[] tmp, float[] deq, int d, int n) {
+        for (int j = 0; j < n; j += AL) {
+            FloatVector.fromByteArray(A, tmp, 4 * j, ORDER).intoArray(deq, d + j);
+        }
+    }
+
+    /** Entry {@code low + (upper ? 16 : 0)} of the 32-entry {@code table}, per lane. */
+    private static IntVector lookUp32(int[] table, VectorShuffle<Integer> low, VectorMask<Integer> upper) {
+        return IntVector.fromArray(WI, table, 0).rearrange(low).blend(IntVector.fromArray(WI, table, WL).rearrange(low),
+                upper);
     }
 }

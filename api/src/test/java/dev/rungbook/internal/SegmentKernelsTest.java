@@ -318,7 +318,7 @@ class SegmentKernelsTest {
         SegmentKernels.Levels table = SegmentKernels.Levels.of(lv);
         float[] y = new float[4096];
         int redone = 0;
-        for (int trial = 0; trial < 150; trial++) {
+        for (int trial = 0; trial < 240; trial++) {
             int m = new int[] {1, 7, 8, 9, 16, 64, 100, 4096 + 24}[trial % 8];
             int count = 1 + r.nextInt(m > 200 ? 2 : 10);
             int off = r.nextInt(9);
@@ -351,9 +351,12 @@ class SegmentKernelsTest {
             SegmentKernels.scalarLevels(w, off, count, m, scales, s0, table, deq, b, y);
             int nextCount = r.nextInt(count + 1);
             float[] ahead = new float[count];
-            // both gather forms: eight 64-bit entries (with AVX-512) and two gathers of 32-bit ones (elsewhere)
-            boolean wide = trial / 8 % 2 == 0;
-            redone += VectorSegments.levels(w, off, count, m, scales, s0, table, vdeq, vb, nextCount, ahead, wide);
+            // every form: the kernel the library picks (sixteen lanes with AVX-512 and m >= 16), the gather of eight
+            // 64-bit entries and the two gathers of 32-bit ones
+            int form = trial / 8 % 3;
+            boolean wide = form == 1;
+            redone += form == 0 ? VectorSegments.levels(w, off, count, m, scales, s0, table, vdeq, vb, nextCount, ahead)
+                    : VectorSegments.levels(w, off, count, m, scales, s0, table, vdeq, vb, nextCount, ahead, wide);
             assertAheadIsMaxAbs(w, off + count * m, nextCount, m, ahead, "trial " + trial);
             for (int i = off; i < off + count * m; i++) {
                 float sc = scales[s0 + (i - off) / m];
@@ -364,7 +367,7 @@ class SegmentKernelsTest {
                 for (int j = 0; j < 15; j++) {
                     want += ((double) lv[j] + lv[j + 1]) / 2 < q ? 1 : 0;
                 }
-                String at = "trial " + trial + (wide ? " (64-bit gather)" : "") + " x " + w[i] + " scale " + sc;
+                String at = "trial " + trial + " form " + form + " x " + w[i] + " scale " + sc;
                 assertEquals(want, b[i], at);
                 assertEquals(b[i], vb[i], at);
                 assertEquals(Float.floatToRawIntBits(sc * lv[want]), Float.floatToRawIntBits(deq[i]), at);
@@ -402,5 +405,59 @@ class SegmentKernelsTest {
             }
         }
         assertTrue(checked > 900_000, "the random quotients' buckets mostly hold one code: " + checked);
+    }
+
+    @Test
+    void sixteenLaneBucketsHoldEveryQuotientTheyAreGiven() {
+        // The sixteen-lane kernel's bucket is rint(x * fl(15 * fl(1 / s)) + 15) in one rounding, not a function of
+        // the quotient x / s; its table is right if every quotient that reaches bucket b lies in permInterval(b)
+        // and the bucket's count plus the threshold test is the definition's count.
+        SegmentKernels.Levels table = SegmentKernels.Levels.of(Nf4.levels());
+        assertTrue(table.permBase != null, "NF4's decision points are far enough apart for the sixteen-lane tables");
+        SplittableRandom r = new SplittableRandom(408);
+        int near = 0;
+        int checked = 0;
+        for (int t = 0; t < 2_000_000; t++) {
+            float s = (float) Math.exp(r.nextDouble(-69, 69)); // within the kernel's scale range
+            double q0 = switch (t % 3) {
+                case 0 -> r.nextDouble(-1, 1);
+                // quotients next to the buckets' edges and to the decision points, where rounding decides
+                case 1 -> (r.nextInt(32) - 0.5) / 15 - 1 + r.nextDouble(-1e-6, 1e-6);
+                default -> table.mids[r.nextInt(15)] + r.nextDouble(-1e-6, 1e-6);
+            };
+            float x = Math.max(-s, Math.min(s, (float) (q0 * s)));
+            float rec = 1f / s;
+            int b = Float.floatToRawIntBits(Math.fma(x, 15f * rec, 15f + 12582912f)) - Float.floatToRawIntBits(12582912f);
+            assertTrue(b >= 0 && b <= 30, "bucket " + b);
+            double q = x / (double) s;
+            double[] in = SegmentKernels.Levels.permInterval(b);
+            assertTrue(q >= in[0] && q <= in[1], "x " + x + " s " + s + " bucket " + b);
+            float d = Math.fma(x, -rec, Float.intBitsToFloat(table.permThreshold[b]));
+            if (Math.abs(d) <= 0x1p-21f) {
+                near++; // the kernel counts these in double
+                continue;
+            }
+            // Source: the definition, the number of decision points (in double) strictly below x / s in double.
+            assertEquals(SegmentKernels.count(table.mids, q), table.permBase[b] + (d < 0 ? 1 : 0),
+                    "x " + x + " s " + s);
+            checked++;
+        }
+        assertTrue(checked > 1_500_000 && near > 0, "checked " + checked + ", near a threshold " + near);
+    }
+
+    @Test
+    void sixteenLaneTablesRefuseCloseDecisionPoints() {
+        // two decision points within one bucket's width (1/15): the eight-lane kernel's tables serve them
+        assertEquals(null, SegmentKernels.Levels.of(new float[] {-1f, 0f, 0.01f, 0.02f, 1f}).permBase);
+        // more than 16 levels
+        float[] many = new float[17];
+        for (int j = 0; j < many.length; j++) {
+            many[j] = -1f + 2f * j / 16;
+        }
+        assertEquals(null, SegmentKernels.Levels.of(many).permBase);
+        // four levels far apart: the tables apply, and count every decision point below a bucket
+        SegmentKernels.Levels four = SegmentKernels.Levels.of(new float[] {-1f, -0.25f, 0.25f, 1f});
+        assertEquals(0, four.permBase[0]);
+        assertEquals(3, four.permBase[30]);
     }
 }
