@@ -196,7 +196,7 @@ final class VectorLanes {
      * products and differences are the same double operations, multiply then add, never fused). The floats are
      * loaded eight at a time, in the 256-bit shape the other kernels use (a second float shape in the JIT's
      * profiles of the shared Vector API methods can make it box vectors; see {@code VectorForward}), and widened
-     * half by half. Minimum and maximum are compare-and-blend, as the plain loop's {@code <} and {@code >}.
+     * half by half: the lower half of the load at {@code i}, then the lower half of a second load at {@code i + 4}. Minimum and maximum are compare-and-blend, as the plain loop's {@code <} and {@code >}.
      */
     static double[] pairSums(float[] x, float[] y) {
         int n = x.length;
@@ -211,7 +211,11 @@ final class VectorLanes {
         FloatVector ylo = xlo;
         FloatVector yhi = xhi;
         int i = 0;
-        for (; i + 8 <= n; i += 8) {
+        // the upper four values are widened from a second load at i + 4 (its lower half), not by converting part 1:
+        // the JDK's part conversion builds a float shuffle, and the first one loaded deoptimised the NF4 level
+        // kernel, whose compiled rearranges had taken Int512Shuffle for the only shuffle class (measured 2026-12-03:
+        // fused NF4 34 ms before an error report, 57 ms after); hence i + 12, not i + 8
+        for (; i + 12 <= n; i += 8) {
             FloatVector fa = FloatVector.fromArray(S8, x, i);
             FloatVector fb = FloatVector.fromArray(S8, y, i);
             xlo = xlo.blend(fa, fa.lt(xlo));
@@ -229,8 +233,8 @@ final class VectorLanes {
             xx = xx.add(a.mul(a));
             yy = yy.add(b.mul(b));
             xy = xy.add(a.mul(b));
-            a = (DoubleVector) fa.convertShape(VectorOperators.F2D, D4, 1);
-            b = (DoubleVector) fb.convertShape(VectorOperators.F2D, D4, 1);
+            a = (DoubleVector) FloatVector.fromArray(S8, x, i + 4).convertShape(VectorOperators.F2D, D4, 0);
+            b = (DoubleVector) FloatVector.fromArray(S8, y, i + 4).convertShape(VectorOperators.F2D, D4, 0);
             e = b.sub(a);
             ae = e.abs();
             e2 = e2.add(e.mul(e));
@@ -263,7 +267,7 @@ final class VectorLanes {
             mny = vylo[k] < mny ? vylo[k] : mny;
             mxy = vyhi[k] > mxy ? vyhi[k] : mxy;
         }
-        // the rest (fewer than 8): i is a multiple of 4, and so is the plain loop's tail start n - n % 4, so value
+        // the rest (fewer than 12): i is a multiple of 4, and so is the plain loop's tail start n - n % 4, so value
         // k goes to lane k mod 4 either way
         for (; i < n; i++) {
             int j = i & 3;

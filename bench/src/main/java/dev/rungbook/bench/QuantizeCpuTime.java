@@ -27,12 +27,15 @@ import java.util.function.DoubleSupplier;
  * so that the four-to-one ratio is measured in CPU time, free of the wall clock's sharing.
  *
  * <p>Usage: {@code java -Xmx6g [--add-modules jdk.incubator.vector] -cp bench/target/benchmarks.jar
- * dev.rungbook.bench.QuantizeCpuTime OUT.json [REPETITIONS [GENERAL-PATH.json]]}.
+ * dev.rungbook.bench.QuantizeCpuTime OUT.json [REPETITIONS [GENERAL-PATH.json]]}; with
+ * {@code -Drungbook.bench.cases=NAME,NAME} only the named cases run (to see which case changes another's figure).
  */
 public final class QuantizeCpuTime {
     private static final int WARM = 3;
     /** The library's switch for its fused segment kernels (see the engine); "false" turns them off. */
     private static final String KERNELS = "rungbook.segmentKernels";
+    /** A comma-separated list of case names: only those run (all of them without it). */
+    private static final String ONLY = "rungbook.bench.cases";
 
     private QuantizeCpuTime() {
     }
@@ -77,7 +80,7 @@ public final class QuantizeCpuTime {
         float[] gScales = new float[n * n / QuantizeBench.NF4_BLOCK];
         double[] gErr = new double[gScales.length];
         double[] gSig = new double[gScales.length];
-        List<Case> cases = List.of(
+        List<Case> every = List.of(
                 new Case("plainCopy", () -> {
                     System.arraycopy(w, 0, copy, 0, w.length);
                     return copy[copy.length - 1];
@@ -102,11 +105,24 @@ public final class QuantizeCpuTime {
                 new Case("studyFourSpecs", () -> everyMetric(matrix, StudyBench.SPECS)));
         // The cases the segment kernels serve, again with the kernels off (the general per-segment path), timed
         // interleaved with the rest when a second output file is given.
+        List<Case> cases = every;
         List<String> generalNames = before == null ? List.of() : List.of("apiPerGroupInt4", "apiNf4",
                 "apiFp8PerChannel", "applyPerGroupInt4", "applyNf4", "applyFp8PerChannel", "studyFourSpecs");
+        String only = System.getProperty(ONLY);
+        if (only != null) {
+            List<String> names = List.of(only.split(","));
+            List<String> unknown = names.stream().filter(x -> every.stream().noneMatch(c -> c.name().equals(x)))
+                    .toList();
+            if (!unknown.isEmpty()) {
+                throw new IllegalArgumentException(ONLY + ": no case named " + unknown + "; the cases are "
+                        + every.stream().map(Case::name).toList());
+            }
+            cases = cases.stream().filter(c -> names.contains(c.name())).toList();
+            generalNames = generalNames.stream().filter(names::contains).toList();
+        }
         List<Case> all = new ArrayList<>(cases);
         for (String name : generalNames) {
-            Case c = cases.stream().filter(x -> x.name().equals(name)).findFirst().orElseThrow();
+            Case c = every.stream().filter(x -> x.name().equals(name)).findFirst().orElseThrow();
             all.add(new Case(name, () -> {
                 System.setProperty(KERNELS, "false");
                 try {
