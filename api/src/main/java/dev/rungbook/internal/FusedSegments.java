@@ -45,8 +45,11 @@ public final class FusedSegments {
         int qmax = (1 << (bits - 1)) - 1;
         runs(w, count, m, scalesOut, dequantOut, sqErrOut, sqSignalOut,
                 a -> a > 0 ? Scales.fit((double) a / qmax, a, qmax) : 1f,
-                (off, len, s0, nextLen, amax) -> SegmentKernels.linear(w, off, len, m, scalesOut, null, s0, -qmax - 1,
-                        qmax, dequantOut, codesOut, null, nextLen, amax));
+                (off, len, s0, nextLen, amax) -> {
+                    SegmentKernels.linear(w, off, len, m, scalesOut, null, s0, -qmax - 1, qmax, dequantOut, codesOut,
+                            null, nextLen, amax);
+                    return false;
+                });
     }
 
     /**
@@ -68,8 +71,11 @@ public final class FusedSegments {
         SegmentKernels.Levels table = Nf4.table();
         float[] scratch = new float[Math.min(m, 4096)];
         runs(w, count, m, scalesOut, dequantOut, sqErrOut, sqSignalOut, a -> a > 0 ? a : 1f,
-                (off, len, s0, nextLen, amax) -> SegmentKernels.levels(w, off, len, m, scalesOut, s0, table,
-                        dequantOut, codesOut, scratch, nextLen, amax));
+                (off, len, s0, nextLen, amax) -> {
+                    SegmentKernels.levels(w, off, len, m, scalesOut, s0, table, dequantOut, codesOut, scratch,
+                            nextLen, amax, sqErrOut, sqSignalOut);
+                    return true;
+                });
     }
 
     /** A segment's scale from its largest magnitude (finite, at least 0). */
@@ -82,7 +88,8 @@ public final class FusedSegments {
      * largest magnitudes of the next run's first {@code nextLen} segments into {@code amax}.
      */
     private interface RunKernel {
-        void code(int off, int len, int s0, int nextLen, float[] amax);
+        /** Returns whether it also wrote the run's error sums. */
+        boolean code(int off, int len, int s0, int nextLen, float[] amax);
     }
 
     /** The runs of segments (see the class comment): scales, the run kernel, the error sums. */
@@ -97,8 +104,8 @@ public final class FusedSegments {
                 scales[s0 + k] = rule.of(finite(w, amax[k], s0 + k, m));
             }
             // the next run's largest magnitudes come on the side, into amax (read above)
-            kernel.code(s0 * m, len, s0, Math.max(0, Math.min(run, count - s0 - len)), amax);
-            if (sqErr != null || sqSignal != null) {
+            boolean summed = kernel.code(s0 * m, len, s0, Math.max(0, Math.min(run, count - s0 - len)), amax);
+            if (!summed && (sqErr != null || sqSignal != null)) {
                 Fused.segmentSums(w, deq, s0 * m, len, m, scales, s0, sqErr, sqSignal);
             }
         }

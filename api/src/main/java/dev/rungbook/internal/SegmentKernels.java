@@ -50,7 +50,7 @@ public final class SegmentKernels {
                         short[].class, int.class, float[].class),
                 "levels", MethodType.methodType(int.class, float[].class, int.class, int.class, int.class,
                         float[].class, int.class, Levels.class, float[].class, byte[].class, int.class,
-                        float[].class),
+                        float[].class, double[].class, double[].class),
                 "lanes", MethodType.methodType(int.class));
         if (h[0] != null) {
             try {
@@ -268,17 +268,33 @@ public final class SegmentKernels {
      */
     public static int levels(float[] w, int off, int count, int m, float[] scales, int s0, Levels table, float[] deq,
             byte[] bytes, float[] y, int nextCount, float[] nextAmax) {
+        return levels(w, off, count, m, scales, s0, table, deq, bytes, y, nextCount, nextAmax, null, null);
+    }
+
+    /**
+     * {@link #levels(float[], int, int, int, float[], int, Levels, float[], byte[], float[], int, float[])} and the
+     * segments' error sums of {@code Fused.segmentSums} into {@code sqErr} and {@code sqSignal} (either or both may
+     * be null), the same bits; with the Vector API module the NF4 kernel forms them while each segment's values are
+     * still in the level-1 cache instead of in a second pass over the run.
+     *
+     * @return the number of elements counted in double
+     */
+    public static int levels(float[] w, int off, int count, int m, float[] scales, int s0, Levels table, float[] deq,
+            byte[] bytes, float[] y, int nextCount, float[] nextAmax, double[] sqErr, double[] sqSignal) {
         checkAhead(count, nextCount);
         if (V_LEVELS != null) {
             try {
                 return (int) V_LEVELS.invokeExact(w, off, count, m, scales, s0, table, deq, bytes, nextCount,
-                        nextAmax);
+                        nextAmax, sqErr, sqSignal);
             } catch (Throwable e) {
                 throw Lanes.unchecked(e);
             }
         }
         int redo = scalarLevels(w, off, count, m, scales, s0, table, deq, bytes, y);
         scalarMaxAbs(w, off + count * m, nextCount, m, nextAmax);
+        if (sqErr != null || sqSignal != null) {
+            Fused.segmentSums(w, deq, off, count, m, scales, s0, sqErr, sqSignal);
+        }
         return redo;
     }
 

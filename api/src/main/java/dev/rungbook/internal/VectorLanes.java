@@ -23,7 +23,8 @@ final class VectorLanes {
 
     /** Eight lanes, as the fixed summation order of {@code Fused.scalarErrorSums} has. */
     private static final VectorSpecies<Float> S8 = FloatVector.SPECIES_256;
-    private static final int CHUNK = 64;
+    /** Values per chunk of {@link #segmentSums} (as {@code Fused}'s). */
+    static final int CHUNK = 64;
 
     private VectorLanes() {
     }
@@ -33,6 +34,11 @@ final class VectorLanes {
      * of each chunk in order, exactly as the scalar partial sums of {@code Fused.scalarErrorSums} do, and the lanes
      * are combined in the same pairwise order; the same bits.
      */
+    /** The eight floats of {@code a} from {@code i} added pairwise, {@code ((a0 + a1) + (a2 + a3)) + ((a4 + a5) + (a6 + a7))}. */
+    static float pairwise(float[] a, int i) {
+        return ((a[i] + a[i + 1]) + (a[i + 2] + a[i + 3])) + ((a[i + 4] + a[i + 5]) + (a[i + 6] + a[i + 7]));
+    }
+
     static void segmentSums(float[] w, float[] d, int off, int count, int m, float[] scales, int s0, double[] sqErr,
             double[] sqSignal) {
         float[] le = new float[8];
@@ -64,8 +70,8 @@ final class VectorLanes {
                     le[j] += dd * dd;
                     ls[j] += u * u;
                 }
-                e += ((le[0] + le[1]) + (le[2] + le[3])) + ((le[4] + le[5]) + (le[6] + le[7]));
-                s += ((ls[0] + ls[1]) + (ls[2] + ls[3])) + ((ls[4] + ls[5]) + (ls[6] + ls[7]));
+                e += pairwise(le, 0);
+                s += pairwise(ls, 0);
             }
             double s2 = (double) sc * sc;
             if (sqErr != null) {
@@ -172,8 +178,8 @@ final class VectorLanes {
                     le[j] += dd * dd;
                     ls[j] += u * u;
                 }
-                e += ((le[0] + le[1]) + (le[2] + le[3])) + ((le[4] + le[5]) + (le[6] + le[7]));
-                s += ((ls[0] + ls[1]) + (ls[2] + ls[3])) + ((ls[4] + ls[5]) + (ls[6] + ls[7]));
+                e += pairwise(le, 0);
+                s += pairwise(ls, 0);
             }
             double s2 = (double) scale * scale;
             if (sqErr != null) {

@@ -201,10 +201,25 @@ final class VectorSegments {
      */
     static int levels(float[] w, int off, int count, int m, float[] scales, int s0, SegmentKernels.Levels table,
             float[] deq, byte[] bytes, int nextCount, float[] nextAmax) {
+        return levels(w, off, count, m, scales, s0, table, deq, bytes, nextCount, nextAmax, null, null);
+    }
+
+    /**
+     * {@link #levels(float[], int, int, int, float[], int, SegmentKernels.Levels, float[], byte[], int, float[])}
+     * and, where {@code sqErr} or {@code sqSignal} is not null, the segments' error sums into them from index
+     * {@code s0}, the same bits as {@code VectorLanes.segmentSums} (the sixteen-lane kernel forms them while a
+     * segment's values are in the level-1 cache; the other paths call {@code segmentSums} after the run).
+     */
+    static int levels(float[] w, int off, int count, int m, float[] scales, int s0, SegmentKernels.Levels table,
+            float[] deq, byte[] bytes, int nextCount, float[] nextAmax, double[] sqErr, double[] sqSignal) {
         if (WIDE_GATHER && table.permBase != null && m >= WL) {
-            return levels16(w, off, count, m, scales, s0, table, deq, bytes, nextCount, nextAmax);
+            return levels16(w, off, count, m, scales, s0, table, deq, bytes, nextCount, nextAmax, sqErr, sqSignal);
         }
-        return levels(w, off, count, m, scales, s0, table, deq, bytes, nextCount, nextAmax, WIDE_GATHER);
+        int redo = levels(w, off, count, m, scales, s0, table, deq, bytes, nextCount, nextAmax, WIDE_GATHER);
+        if (sqErr != null || sqSignal != null) {
+            VectorLanes.segmentSums(w, deq, off, count, m, scales, s0, sqErr, sqSignal);
+        }
+        return redo;
     }
 
     /** {@link #levels} with the one 64-bit gather ({@code wide}) or the two 32-bit ones; tests run both. */
@@ -308,27 +323,42 @@ final class VectorSegments {
      * 2.3 ms after this kernel (2.4 ms in a JVM that ran no quantizer).
      */
     private static int levels16(float[] w, int off, int count, int m, float[] scales, int s0,
-            SegmentKernels.Levels table, float[] deq, byte[] bytes, int nextCount, float[] nextAmax) {
+            SegmentKernels.Levels table, float[] deq, byte[] bytes, int nextCount, float[] nextAmax, double[] sqErr,
+            double[] sqSignal) {
         maxAbs(w, off + count * m, nextCount, m, nextAmax); // the next run's first pass
         int vend = m - m % WL;
         byte[] tmp = new byte[4 * vend];
         float[] scratch = new float[m];
+        boolean sums = sqErr != null || sqSignal != null;
+        // the sums on the way out hold for one chunk of whole vectors (no tail), as segmentSums takes them
+        boolean sumsOnTheWay = sums && vend == m && m <= VectorLanes.CHUNK;
+        float[] lanes = new float[2 * AL];
         int redo = 0;
         for (int k = 0; k < count; k++) {
             int base = off + k * m;
             float sc = scales[s0 + k];
             if (!(sc >= 0x1p-100f && sc <= 0x1p100f)) { // a reciprocal near the ends of the float range
                 redo += levels(w, base, 1, m, scales, s0 + k, table, deq, bytes, 0, nextAmax, true);
+                if (sums) {
+                    VectorLanes.segmentSums(w, deq, base, 1, m, scales, s0 + k, sqErr, sqSignal);
+                }
                 continue;
             }
             float r = 1f / sc;
             int near = segment16(w, base, vend, r, sc, table, tmp, bytes);
+            if (sumsOnTheWay && near == 0) {
+                copyOutSums(tmp, deq, w, base, vend, sc, lanes, s0 + k, sqErr, sqSignal);
+                continue;
+            }
             copyOut(tmp, deq, base, vend);
             if (near != 0) { // a quotient near a threshold: the segment's codes by the definition
                 redo += SegmentKernels.levels(w, base, vend, sc, table, deq, bytes, scratch);
             }
             if (vend < m) {
                 redo += SegmentKernels.levels(w, base + vend, m - vend, sc, table, deq, bytes, scratch);
+            }
+            if (sums) {
+                VectorLanes.segmentSums(w, deq, base, 1, m, scales, s0 + k, sqErr, sqSignal);
             }
         }
         return redo;
@@ -379,6 +409,38 @@ final class VectorSegments {
     private static void copyOut(byte[] tmp, float[] deq, int d, int n) {
         for (int j = 0; j < n; j += AL) {
             FloatVector.fromByteArray(A, tmp, 4 * j, ORDER).intoArray(deq, d + j);
+        }
+    }
+
+    /**
+     * {@link #copyOut} of one segment of {@code n <= VectorLanes.CHUNK} values (a multiple of 8) from {@code d},
+     * with its error sums into entry {@code s} of {@code sqErr} and {@code sqSignal} (either may be null): the
+     * operations of {@code VectorLanes.segmentSums} in its order (eight float lanes, {@code (x - v) * inv} and
+     * {@code x * inv} squared and added, the lanes added pairwise, times {@code sc^2} in double), so the same bits.
+     * {@code lanes}: scratch of 16 floats.
+     */
+    private static void copyOutSums(byte[] tmp, float[] deq, float[] w, int d, int n, float sc, float[] lanes, int s,
+            double[] sqErr, double[] sqSignal) {
+        float inv = 1f / sc;
+        FloatVector ve = FloatVector.zero(A);
+        FloatVector vs = ve;
+        for (int j = 0; j < n; j += AL) {
+            FloatVector v = FloatVector.fromByteArray(A, tmp, 4 * j, ORDER);
+            v.intoArray(deq, d + j);
+            FloatVector x = FloatVector.fromArray(A, w, d + j);
+            FloatVector dd = x.sub(v).mul(inv);
+            FloatVector u = x.mul(inv);
+            ve = ve.add(dd.mul(dd));
+            vs = vs.add(u.mul(u));
+        }
+        ve.intoArray(lanes, 0);
+        vs.intoArray(lanes, AL);
+        double s2 = (double) sc * sc;
+        if (sqErr != null) {
+            sqErr[s] = VectorLanes.pairwise(lanes, 0) * s2;
+        }
+        if (sqSignal != null) {
+            sqSignal[s] = VectorLanes.pairwise(lanes, AL) * s2;
         }
     }
 

@@ -109,11 +109,23 @@ class FusedSegmentsTest {
 
     @Test
     void nf4BlocksGiveTheApisResultsAndExactSums() {
-        for (int m : new int[] {64, 32, 256}) {
+        // 16, 32 and 64: sums formed on the way out of the sixteen-lane kernel; 256 (over one chunk), 24 (a tail
+        // after the vectors) and 48 (not a power of two): sums after the segment
+        for (int m : new int[] {64, 32, 256, 16, 24, 48}) {
             float[] w = matrix(29L + m);
             Out o = new Out(w, m);
             FusedSegments.nf4(w, o.count, m, o.scales, o.codes, o.dq, o.se, o.ss);
-            o.assertSameAsApiAndExact(Quantizer.nf4().blockSize(m).apply(Tensor.of(w, ROWS, COLS)));
+            Tensor t = COLS % m == 0 ? Tensor.of(w, ROWS, COLS) : Tensor.of(w, o.count, m);
+            o.assertSameAsApiAndExact(Quantizer.nf4().blockSize(m).apply(t));
+            // Reference: the plain loops of the error sums (Fused.scalarSegmentSums) on the same values: the same
+            // operations in the same order, so the same bits, whichever kernel formed them
+            double[] se = new double[o.count];
+            double[] ss = new double[o.count];
+            Fused.scalarSegmentSums(w, o.dq, 0, o.count, m, o.scales, 0, se, ss);
+            for (int s = 0; s < o.count; s++) {
+                assertEquals(Double.doubleToLongBits(se[s]), Double.doubleToLongBits(o.se[s]), "error sum " + s + ", m " + m);
+                assertEquals(Double.doubleToLongBits(ss[s]), Double.doubleToLongBits(o.ss[s]), "signal sum " + s + ", m " + m);
+            }
         }
     }
 

@@ -1,5 +1,7 @@
 package dev.rungbook.bench;
 
+import dev.rungbook.internal.Fused;
+import dev.rungbook.internal.FusedSegments;
 import dev.rungbook.quant.Quantized;
 import dev.rungbook.quant.Quantizer;
 import dev.rungbook.tensor.Tensor;
@@ -17,8 +19,8 @@ import java.util.function.Function;
  *
  * <p>Cases: per-group int4 (group 128 along the rows) and NF4 (blocks of 64), each also with the library's segment
  * kernels switched off (system property {@code rungbook.segmentKernels=false} around the call: the general
- * per-segment path), and per-channel asymmetric int8 (the fused row kernel, which the segment kernels must not slow
- * down when both run in one JVM).
+ * per-segment path), per-channel asymmetric int8 (the fused row kernel, which the segment kernels must not slow
+ * down when both run in one JVM), and {@link QuantizeCpuTime}'s three fused jobs with caller-owned outputs.
  */
 public final class SegmentSubject implements Function<String, DoubleSupplier> {
     private static final String KERNELS = "rungbook.segmentKernels";
@@ -43,6 +45,26 @@ public final class SegmentSubject implements Function<String, DoubleSupplier> {
         cases.put("applyPerGroupInt4General", () -> general(int4, matrix));
         cases.put("applyNf4General", () -> general(nf4, matrix));
         cases.put("applyPerChannelInt8", () -> apply(int8, matrix));
+        // the fused jobs with caller-owned outputs (QuantizeBench's fused cases, written here so that a --before
+        // run takes them from the older jar too)
+        float[] scales = new float[n * n / 64];
+        int[] zeros = new int[n];
+        byte[] codes = new byte[n * n];
+        float[] dq = new float[n * n];
+        double[] err = new double[n * n / 64];
+        double[] sig = new double[n * n / 64];
+        cases.put("fusedPerChannelInt8", () -> {
+            Fused.quantizeRows(w, n, n, 8, false, scales, zeros, codes, dq, err, sig);
+            return err[0] + sig[n - 1];
+        });
+        cases.put("fusedPerGroupInt4", () -> {
+            FusedSegments.linear(w, n * n / 128, 128, 4, scales, codes, dq, err, sig);
+            return err[0] + sig[n * n / 128 - 1];
+        });
+        cases.put("fusedNf4", () -> {
+            FusedSegments.nf4(w, n * n / 64, 64, scales, codes, dq, err, sig);
+            return err[0] + sig[n * n / 64 - 1];
+        });
     }
 
     private static double apply(Quantizer q, Tensor t) {
