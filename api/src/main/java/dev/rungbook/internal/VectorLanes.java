@@ -30,15 +30,18 @@ final class VectorLanes {
     }
 
     /**
-     * {@code Fused.segmentSums} with eight-lane vectors: per segment, lane {@code j} adds the values {@code j mod 8}
-     * of each chunk in order, exactly as the scalar partial sums of {@code Fused.scalarErrorSums} do, and the lanes
-     * are combined in the same pairwise order; the same bits.
+     * The eight floats of {@code a} from {@code i} added pairwise:
+     * {@code ((a0 + a1) + (a2 + a3)) + ((a4 + a5) + (a6 + a7))}.
      */
-    /** The eight floats of {@code a} from {@code i} added pairwise, {@code ((a0 + a1) + (a2 + a3)) + ((a4 + a5) + (a6 + a7))}. */
     static float pairwise(float[] a, int i) {
         return ((a[i] + a[i + 1]) + (a[i + 2] + a[i + 3])) + ((a[i + 4] + a[i + 5]) + (a[i + 6] + a[i + 7]));
     }
 
+    /**
+     * {@code Fused.segmentSums} with eight-lane vectors: per segment, lane {@code j} adds the values {@code j mod 8}
+     * of each chunk in order, exactly as the scalar partial sums of {@code Fused.scalarErrorSums} do, and the lanes
+     * are combined in the same pairwise order; the same bits.
+     */
     static void segmentSums(float[] w, float[] d, int off, int count, int m, float[] scales, int s0, double[] sqErr,
             double[] sqSignal) {
         float[] le = new float[8];
@@ -202,7 +205,8 @@ final class VectorLanes {
      * products and differences are the same double operations, multiply then add, never fused). The floats are
      * loaded eight at a time, in the 256-bit shape the other kernels use (a second float shape in the JIT's
      * profiles of the shared Vector API methods can make it box vectors; see {@code VectorForward}), and widened
-     * half by half: the lower half of the load at {@code i}, then the lower half of a second load at {@code i + 4}. Minimum and maximum are compare-and-blend, as the plain loop's {@code <} and {@code >}.
+     * half by half: the lower half of the load at {@code i}, then the lower half of a second load at
+     * {@code i + 4}. Minimum and maximum are compare-and-blend, as the plain loop's {@code <} and {@code >}.
      */
     static double[] pairSums(float[] x, float[] y) {
         int n = x.length;
