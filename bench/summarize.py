@@ -167,12 +167,15 @@ def quantize_section(title, note, q, qv, before, np_ms, np_what, before_label="p
 
 cpu = load("QuantizeCpuTime.json")
 if cpu:
+    cpu_forks = next(iter(cpu.values()))["primaryMetric"].get("forks", 1)
+    fork_note = (f"each figure is the median of {cpu_forks} fresh JVMs' medians, run one after the other, since one "
+                 "JVM's compiled code is one draw (the JSON files list every fork's median under forkMedians)"
+                 if cpu_forks > 1 else "one JVM")
     lines += quantize_section(
         "## Quantizing a 4096 x 4096 float32 matrix (thread CPU time)",
         "Medians of the benchmark thread's CPU time over interleaved repetitions (QuantizeCpuTime; every case is "
-        "single-threaded; latest run 2026-12-03 on a quiet machine with no steal time, whose plain copy of the matrix "
-        "and NumPy job took about 1.5x and 1.2x the times of the earlier sessions' machines and whose plain fused "
-        "loops took 1.2x the time of 2026-12-02's run with unchanged code: read the ratios). Used as the headline because on a shared machine "
+        f"single-threaded; {fork_note}; read the ratios, since this shared machine's speed varies from session to "
+        "session: the plain copy of the matrix has taken 9 to 14 ms). Used as the headline because on a shared machine "
         "the JMH wall-clock scores below swing by more than their own size. 'Vector API module': a JVM started with "
         "`--add-modules jdk.incubator.vector`, where the min/max reductions and the fused error sums run on the "
         "incubating Vector API with the same results bit for bit. 'General path': the cases that the fused segment "

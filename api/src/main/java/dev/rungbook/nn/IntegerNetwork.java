@@ -1,6 +1,7 @@
 package dev.rungbook.nn;
 
 import dev.rungbook.internal.ForwardKernels;
+import dev.rungbook.internal.Lanes;
 import dev.rungbook.internal.TensorAccess;
 import dev.rungbook.quant.Quantizer;
 import dev.rungbook.range.RangeRule;
@@ -449,10 +450,22 @@ public final class IntegerNetwork {
 
     /**
      * Quantizes float inputs ([N, in] or [N, C, H, W]) to the input grid:
-     * {@code clamp(rint(v / S_x) + z_x, 0, 2^bits - 1)} in double, NaN giving 0.
+     * {@code clamp(rint(v / S_x) + z_x, 0, 2^bits - 1)} in double.
+     *
+     * @throws IllegalArgumentException if an input is NaN or infinite (the message names the tensor and the first
+     *     such index): such a value has no place on the grid, and a code for it would be a silent wrong number
      */
     public int[] quantizeInput(Tensor x) {
-        return ForwardKernels.quantizeCodes(TensorAccess.data(x), inputScale, inputZeroPoint, (1 << bits) - 1);
+        float[] v = TensorAccess.data(x);
+        if (!Float.isFinite(Lanes.maxAbs(v, 0, v.length))) {
+            for (int i = 0; i < v.length; i++) {
+                if (!Float.isFinite(v[i])) {
+                    throw new IllegalArgumentException(x.label() + ": input value " + v[i] + " at index " + i
+                            + "; NaN and infinite inputs cannot be put on the integer grid");
+                }
+            }
+        }
+        return ForwardKernels.quantizeCodes(v, inputScale, inputZeroPoint, (1 << bits) - 1);
     }
 
     /**

@@ -26,8 +26,9 @@ import org.junit.jupiter.params.provider.MethodSource;
 /**
  * Opens every file of the committed hostile corpus ({@code src/test/resources/hostile}, made by
  * {@code make_hostile.py}, listed in {@code manifest.tsv}) and checks the refusal: a {@link CheckpointFormatException}
- * whose message starts with the file and contains the manifest's words, within 1 s (a hang guard, not a speed target)
- * and under 64 MiB of heap allocated by the reading thread.
+ * whose message starts with the file and contains the manifest's words, within 5 s (a hang guard, not a speed target:
+ * the refusals take milliseconds; the margin is for a loaded CI machine) and under 64 MiB of heap allocated by the
+ * reading thread.
  */
 class HostileCorpusTest {
     static final long HEAP_BUDGET = 64L << 20;
@@ -82,7 +83,7 @@ class HostileCorpusTest {
     @MethodSource("files")
     void refusedClearlyWithinBounds(String name, String words) {
         Path file = corpus().resolve(name);
-        CheckpointFormatException e = assertTimeoutPreemptively(Duration.ofSeconds(1), () -> {
+        CheckpointFormatException e = assertTimeoutPreemptively(Duration.ofSeconds(5), () -> {
             long before = allocatedBytes();
             CheckpointFormatException x = assertThrows(CheckpointFormatException.class, () -> {
                 try (Checkpoint c = Checkpoint.open(file)) {
@@ -96,7 +97,7 @@ class HostileCorpusTest {
                 assertTrue(used < HEAP_BUDGET, name + ": refusal allocated " + used + " bytes: " + x.getMessage());
             }
             return x;
-        }, name + ": no answer within 1 s");
+        }, name + ": no answer within 5 s");
         assertTrue(e.getMessage().startsWith(file + ": "), e.getMessage());
         OUTCOMES.put(name, e.getMessage().substring(file.toString().length() + 2));
         String msg = e.getMessage().toLowerCase(Locale.ROOT);

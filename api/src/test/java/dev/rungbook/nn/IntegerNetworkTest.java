@@ -4,6 +4,7 @@ import static org.junit.jupiter.api.Assertions.assertEquals;
 import static org.junit.jupiter.api.Assertions.assertThrows;
 import static org.junit.jupiter.api.Assertions.assertTrue;
 
+import dev.rungbook.internal.TensorAccess;
 import dev.rungbook.tensor.Tensor;
 import org.junit.jupiter.api.Test;
 
@@ -50,6 +51,23 @@ class IntegerNetworkTest {
             }
             a = fixed;
             zx = in.outputZeroPoint(i);
+        }
+    }
+
+    @Test
+    void nonFiniteInputsAreRefusedNamingTheTensorAndIndex() {
+        // Source: the project's input rule (a NaN has no code on an integer grid; clamping it to a code would be a
+        // silent wrong number), as for weights in QuantizerTest.
+        Network net = Trainer.initialMlp(31, 16, 8, 4);
+        IntegerNetwork in = IntegerNetwork.of(net, EqualizationTest.inputs(32, 256, 16), 8);
+        for (float bad : new float[] {Float.NaN, Float.POSITIVE_INFINITY, Float.NEGATIVE_INFINITY}) {
+            float[] v = TensorAccess.data(EqualizationTest.inputs(33, 10, 16)).clone();
+            v[37] = bad;
+            v[90] = Float.NaN;
+            Tensor x = Tensor.of(v, 10, 16).withName("batch.x");
+            IllegalArgumentException e = assertThrows(IllegalArgumentException.class, () -> in.forwardCodes(x));
+            assertTrue(e.getMessage().startsWith("tensor 'batch.x': input value " + bad + " at index 37"),
+                    e.getMessage());
         }
     }
 

@@ -28,7 +28,9 @@ import java.util.function.DoubleSupplier;
  *
  * <p>Usage: {@code java -Xmx6g [--add-modules jdk.incubator.vector] -cp bench/target/benchmarks.jar
  * dev.rungbook.bench.QuantizeCpuTime OUT.json [REPETITIONS [GENERAL-PATH.json]]}; with
- * {@code -Drungbook.bench.cases=NAME,NAME} only the named cases run (to see which case changes another's figure).
+ * {@code -Drungbook.bench.cases=NAME,NAME} only the named cases run (to see which case changes another's figure);
+ * with {@code -Drungbook.bench.forks=N} the cases run in N fresh JVMs one after the other and each file gets the
+ * median of the forks' medians ({@link CpuTimeRuns#inForks}; {@code bench/run} runs 3).
  */
 public final class QuantizeCpuTime {
     private static final int WARM = 3;
@@ -52,7 +54,12 @@ public final class QuantizeCpuTime {
         }
     }
 
-    public static void main(String[] args) throws IOException {
+    public static void main(String[] args) throws IOException, InterruptedException {
+        int forks = CpuTimeRuns.forks();
+        if (forks > 1) {
+            CpuTimeRuns.inForks(QuantizeCpuTime.class, args, forks, 0, 2);
+            return;
+        }
         int reps = args.length > 1 ? Integer.parseInt(args[1]) : 9;
         Path before = args.length > 2 ? Path.of(args[2]) : null;
         int n = QuantizeBench.N;
