@@ -3,6 +3,7 @@ package dev.rungbook.nn;
 import static org.junit.jupiter.api.Assertions.assertArrayEquals;
 import static org.junit.jupiter.api.Assertions.assertEquals;
 
+import dev.rungbook.internal.ForwardKernels;
 import dev.rungbook.internal.TensorAccess;
 import dev.rungbook.tensor.Tensor;
 import dev.rungbook.testing.Fixtures;
@@ -101,7 +102,8 @@ class PackedForwardTest {
     @Test
     void inputQuantizationIsTheClampedRoundedQuotient() {
         // Source: the definition clamp(rint(v / S_x) + z_x, 0, 2^b - 1) with Math.min/Math.max in double, as the
-        // previous loop computed it; NaN gives 0 there ((int) NaN), and so must it here.
+        // previous loop computed it; NaN gives 0 there ((int) NaN), and so must it in the kernel (quantizeInput
+        // refuses NaN and infinities before the kernel: IntegerNetworkTest).
         Network net = Trainer.initialMlp(11, 17, 9, 3);
         IntegerNetwork in = IntegerNetwork.of(net, EqualizationTest.inputs(12, 64, 17), 8);
         float[] v = Fixtures.gaussian(5, 17 * 40);
@@ -112,7 +114,7 @@ class PackedForwardTest {
         v[4] = -0.0f;
         v[5] = Float.POSITIVE_INFINITY;
         v[6] = Float.NEGATIVE_INFINITY;
-        int[] q = in.quantizeInput(Tensor.of(v, 40, 17));
+        int[] q = ForwardKernels.quantizeCodes(v, in.inputScale(), in.inputZeroPoint(), 255);
         for (int i = 0; i < v.length; i++) {
             int want = (int) Math.max(0, Math.min(255, Math.rint(v[i] / in.inputScale()) + in.inputZeroPoint()));
             assertEquals(want, q[i], "value " + v[i]);
