@@ -190,8 +190,10 @@ q = load("QuantizeBench.json")
 if q:
     lines += quantize_section(
         "## Quantizing a 4096 x 4096 float32 matrix (JMH, wall clock)",
-        "JMH average times (ms/op). On a quiet machine these are the figures to use; this run was made on a loaded "
-        "one (see the error columns of the JSON files) and is kept for completeness.",
+        "JMH average times (ms/op), one JVM per benchmark class: one draw of the JIT's compiled code (see "
+        "DEVELOPERS.md), so the thread-CPU table above, the median of three JVMs, is the headline; the JSON files "
+        "give each score's error. A 'previous implementation' column appears when QuantizeBench-before.json, made "
+        "by hand with that version's jar in the same session, is present.",
         q, load("QuantizeVectorBench.json"), load("QuantizeBench-before.json"),
         npr_jmh["median_ms"] if npr_jmh else None, "median wall clock", np_row=npr_jmh)
 
