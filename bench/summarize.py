@@ -287,7 +287,11 @@ if fc:
               f"One JVM ({'with' if some['vectorModule'] else 'without'} the Vector API module), one thread, cases "
               f"interleaved, medians of {some['primaryMetric']['repetitions']} repetitions; the previous version "
               f"({some['before'] or 'not given'}) runs in its own class loader. Load average "
-              f"{some['loadStart'].split()[0]} at the start, {some['loadEnd'].split()[0]} at the end.", "",
+              f"{some['loadStart'].split()[0]} at the start, {some['loadEnd'].split()[0]} at the end."
+              + (" Before the passes the JVM quantized a 1024 x 1024 matrix once with each of int8, int4 per-group "
+                 "128, NF4, 16- and 32-level codebooks and FP8 per channel, as a notebook would (a quantizer kernel "
+                 "that shares a Vector API shape with the passes would show here)."
+                 if some.get('quantizersFirst') else ""), "",
               "| case | previous ms | this ms | speed-up | G op/s | share of its peak | wall ms |",
               "| --- | ---: | ---: | ---: | ---: | ---: | ---: |"]
     peak_of = {"mlpFloatForward": "peakVectorFma", "cnnFloatForward": "peakVectorFma",

@@ -396,16 +396,10 @@ public final class SegmentKernels {
         /** Code per bucket, -1 where the double count decides. */
         final byte[] codes;
         /**
-         * For {@link VectorSegments}: per bucket {@code b = rint((y + 1) * VECTOR_BUCKETS)} of the float quotient
-         * {@code y} (rounded to nearest even, so monotone in {@code y}), the code every quotient of the bucket has, or
-         * -1 where a midpoint's float neighbour lies in the bucket; and the level of that code (0 for -1).
-         */
-        final int[] vectorCodes;
-        final float[] vectorLevels;
-        /**
-         * The same buckets as one 64-bit entry each, for a kernel that reads a bucket with one gather of 64-bit lanes
-         * rather than two of 32-bit lanes: the code in the high 32 bits (so a bucket with code -1 has a negative
-         * entry), the bits of its level in the low 32.
+         * For {@link VectorSegments}' eight-lane kernel: per bucket {@code b = rint((y + 1) * VECTOR_BUCKETS)} of the
+         * float quotient {@code y} (rounded to nearest even, so monotone in {@code y}), one 64-bit entry: in the high
+         * 32 bits the code every quotient of the bucket has, or -1 where a midpoint's float neighbour lies in the
+         * bucket (so such an entry is negative); in the low 32 the bits of that code's level (0 for -1).
          */
         final long[] vectorEntries;
 
@@ -429,8 +423,7 @@ public final class SegmentKernels {
                     codes[b] = -1;
                 }
             }
-            vectorCodes = new int[2 * VECTOR_BUCKETS + 1];
-            vectorLevels = new float[vectorCodes.length];
+            int[] vectorCodes = new int[2 * VECTOR_BUCKETS + 1];
             for (int b = 0; b < vectorCodes.length; b++) {
                 float rep = (float) b / VECTOR_BUCKETS - 1f;
                 vectorCodes[b] = vectorBucket(rep) == b ? count(mids, rep) : -1;
@@ -449,9 +442,8 @@ public final class SegmentKernels {
             permLevels = perm == null ? null : perm[2];
             vectorEntries = new long[vectorCodes.length];
             for (int b = 0; b < vectorCodes.length; b++) {
-                vectorLevels[b] = vectorCodes[b] < 0 ? 0f : levels[vectorCodes[b]];
-                vectorEntries[b] = ((long) vectorCodes[b] << 32)
-                        | (Float.floatToRawIntBits(vectorLevels[b]) & 0xFFFF_FFFFL);
+                float level = vectorCodes[b] < 0 ? 0f : levels[vectorCodes[b]];
+                vectorEntries[b] = ((long) vectorCodes[b] << 32) | (Float.floatToRawIntBits(level) & 0xFFFF_FFFFL);
             }
         }
 

@@ -5,7 +5,6 @@ import java.nio.ByteOrder;
 import jdk.incubator.vector.ByteVector;
 import jdk.incubator.vector.FloatVector;
 import jdk.incubator.vector.IntVector;
-import jdk.incubator.vector.LongVector;
 import jdk.incubator.vector.ShortVector;
 import jdk.incubator.vector.VectorMask;
 import jdk.incubator.vector.VectorOperators;
@@ -40,14 +39,8 @@ final class VectorSegments {
     private static final VectorSpecies<Integer> AI = IntVector.SPECIES_256;
     private static final VectorSpecies<Byte> AB = ByteVector.SPECIES_64;
     private static final VectorSpecies<Short> AS = ShortVector.SPECIES_128;
-    /**
-     * Eight 64-bit lanes: {@link #levels}' one gather per eight quotients, used where the preferred vectors hold
-     * eight longs (with AVX-512; elsewhere the JDK would emulate them). Measured (2026-12-03, three JVMs of each in
-     * turn, the fused NF4 benchmark case): 64-65 ms median against 75-84 ms with two 32-bit gathers; the other cases
-     * in the same JVMs unchanged.
-     */
-    private static final VectorSpecies<Long> AQ = LongVector.SPECIES_512;
-    private static final boolean WIDE_GATHER = LongVector.SPECIES_PREFERRED.length() >= AQ.length();
+    /** Whether the preferred vectors hold sixteen floats (AVX-512), which {@link #levels16} needs. */
+    private static final boolean SIXTEEN_LANES = FloatVector.SPECIES_PREFERRED.length() >= 16;
     private static final float MAGIC = 12582912f; // 1.5 * 2^23, as in SegmentKernels
     private static final int MAGIC_BITS = Float.floatToRawIntBits(MAGIC);
 
@@ -193,10 +186,10 @@ final class VectorSegments {
      * {@code k} with scale {@code scales[s0 + k]}.
      *
      * <p>The float quotient {@code y} picks a bucket {@code rint((y + 1) * B)} ({@code B = Levels.VECTOR_BUCKETS},
-     * rounded through {@code + 1.5 * 2^23} as above; monotone in {@code y}), and gathers read the bucket's code and
-     * level from the table's vector buckets: one gather of eight 64-bit entries ({@code Levels.vectorEntries}) where
-     * the preferred vectors hold eight longs, else two gathers of eight ints and floats. A bucket that holds a
-     * midpoint's float neighbour has code -1, and its lanes are counted as the definition says, in double.
+     * rounded through {@code + 1.5 * 2^23} as above; monotone in {@code y}), and each lane reads its bucket's code and
+     * level from the table's vector buckets ({@code Levels.vectorEntries}, one 64-bit entry each). A bucket that holds a
+     * midpoint's float neighbour has code -1, and its lanes are counted as the definition says, in double. With
+     * AVX-512 and tables that allow it, the sixteen-lane kernel {@link #levels16} runs instead.
      * {@code nextCount} and {@code nextAmax} as for {@link #linear}.
      */
     static int levels(float[] w, int off, int count, int m, float[] scales, int s0, SegmentKernels.Levels table,
@@ -212,20 +205,20 @@ final class VectorSegments {
      */
     static int levels(float[] w, int off, int count, int m, float[] scales, int s0, SegmentKernels.Levels table,
             float[] deq, byte[] bytes, int nextCount, float[] nextAmax, double[] sqErr, double[] sqSignal) {
-        if (WIDE_GATHER && table.permBase != null && m >= WL) {
+        if (SIXTEEN_LANES && table.permBase != null && m >= WL) {
             return levels16(w, off, count, m, scales, s0, table, deq, bytes, nextCount, nextAmax, sqErr, sqSignal);
         }
-        int redo = levels(w, off, count, m, scales, s0, table, deq, bytes, nextCount, nextAmax, WIDE_GATHER);
+        int redo = levels8(w, off, count, m, scales, s0, table, deq, bytes, nextCount, nextAmax);
         if (sqErr != null || sqSignal != null) {
             VectorLanes.segmentSums(w, deq, off, count, m, scales, s0, sqErr, sqSignal);
         }
         return redo;
     }
 
-    /** {@link #levels} with the one 64-bit gather ({@code wide}) or the two 32-bit ones; tests run both. */
-    static int levels(float[] w, int off, int count, int m, float[] scales, int s0, SegmentKernels.Levels table,
-            float[] deq, byte[] bytes, int nextCount, float[] nextAmax, boolean wide) {
-        int[] idx = new int[AL];
+    /** {@link #levels} with eight lanes, whatever the host and table (tests run it beside the kernel picked). */
+    static int levels8(float[] w, int off, int count, int m, float[] scales, int s0, SegmentKernels.Levels table,
+            float[] deq, byte[] bytes, int nextCount, float[] nextAmax) {
+        float[] lanes = new float[AL];
         float[] scratch = new float[AL];
         int vend = m - m % AL;
         int redo = 0;
@@ -238,13 +231,13 @@ final class VectorSegments {
                 IntVector mx = IntVector.zero(AI);
                 for (int j = 0; j < vend; j += AL) {
                     mx = mx.max(magnitudeBits(w, base + next + j));
-                    redo += levelLanes(w, base + j, sc, table, deq, bytes, idx, wide);
+                    redo += levelLanes(w, base + j, sc, table, deq, bytes, lanes);
                 }
                 nextAmax[k] = maxAbsFinish(w, mx.reduceLanes(VectorOperators.MAX), base + next + vend,
                         base + next + m);
             } else {
                 for (int j = 0; j < vend; j += AL) {
-                    redo += levelLanes(w, base + j, sc, table, deq, bytes, idx, wide);
+                    redo += levelLanes(w, base + j, sc, table, deq, bytes, lanes);
                 }
             }
             if (vend < m) {
@@ -255,38 +248,27 @@ final class VectorSegments {
     }
 
     /**
-     * Eight lanes of {@link #levels} from {@code i} ({@code idx}: scratch of eight); returns the lanes redone. Each
-     * branch ends in its own call of {@link #storeLevels}: a vector that lives across a branch is boxed by the JIT.
+     * Eight lanes of {@link #levels} from {@code i} ({@code lanes}: scratch of eight); returns the lanes redone. The
+     * buckets leave the vector as floats (bits {@code MAGIC_BITS + bucket}) with the 256-bit float store the other
+     * kernels use, and each lane reads its entry on its own. Gathers would load 256-bit int index vectors with
+     * {@code IntVector.fromArray}, which the integer forward pass calls on 512-bit ones; measured (2026-12-04, the
+     * sample MLP's integer pass in a JVM that had first coded a 1024 x 1024 matrix to a 16-level codebook): 20-35 ms
+     * after the gathers, against 1.4 ms after this form or with no quantizer run. An isolated loop of these lookups
+     * measured (2026-12-03) 1.3x faster than the gathers, and equal inside the kernel.
      */
     private static int levelLanes(float[] w, int i, float sc, SegmentKernels.Levels table, float[] deq, byte[] bytes,
-            int[] idx, boolean wide) {
-        FloatVector y = FloatVector.fromArray(A, w, i).div(sc);
-        ((IntVector) y.add(1f).mul((float) SegmentKernels.Levels.VECTOR_BUCKETS).add(MAGIC).reinterpretShape(AI, 0))
-                .sub(MAGIC_BITS).intoArray(idx, 0);
-        if (wide) {
-            LongVector e = LongVector.fromArray(AQ, table.vectorEntries, 0, idx, 0);
-            return storeLevels(w, i, sc, table, deq, bytes, idx,
-                    (IntVector) e.lanewise(VectorOperators.ASHR, 32).convertShape(VectorOperators.L2I, AI, 0),
-                    (FloatVector) e.convertShape(VectorOperators.L2I, AI, 0).reinterpretShape(A, 0));
-        }
-        return storeLevels(w, i, sc, table, deq, bytes, idx, IntVector.fromArray(AI, table.vectorCodes, 0, idx, 0),
-                FloatVector.fromArray(A, table.vectorLevels, 0, idx, 0));
-    }
-
-    /** Stores eight codes {@code c} and levels {@code v} (times {@code sc}) from {@code i}; redoes code -1 lanes. */
-    private static int storeLevels(float[] w, int i, float sc, SegmentKernels.Levels table, float[] deq,
-            byte[] bytes, int[] idx, IntVector c, FloatVector v) {
-        ((ByteVector) c.convertShape(VectorOperators.I2B, AB, 0)).intoArray(bytes, i);
-        v.mul(sc).intoArray(deq, i);
-        if (!c.compare(VectorOperators.LT, 0).anyTrue()) {
-            return 0;
-        }
-        // the lanes of a bucket with a midpoint's neighbour: the definition, in double
+            float[] lanes) {
+        FloatVector.fromArray(A, w, i).div(sc).add(1f).mul((float) SegmentKernels.Levels.VECTOR_BUCKETS).add(MAGIC)
+                .intoArray(lanes, 0);
         int redo = 0;
-        c.intoArray(idx, 0);
         for (int l = 0; l < AL; l++) {
-            if (idx[l] < 0) {
-                int code = SegmentKernels.count(table.mids, w[i + l] / (double) sc);
+            long e = table.vectorEntries[Float.floatToRawIntBits(lanes[l]) - MAGIC_BITS];
+            int code = (int) (e >> 32);
+            if (code >= 0) {
+                bytes[i + l] = (byte) code;
+                deq[i + l] = Float.intBitsToFloat((int) e) * sc;
+            } else { // a bucket with a midpoint's neighbour: the definition, in double
+                code = SegmentKernels.count(table.mids, w[i + l] / (double) sc);
                 bytes[i + l] = (byte) code;
                 deq[i + l] = sc * table.levels[code];
                 redo++;
@@ -316,11 +298,9 @@ final class VectorSegments {
      * {@code intoByteArray}, as {@link VectorForward}; int load, and, add, shifts, comparisons and blends) and
      * permutations, which nothing else calls; never the float arithmetic or {@code intoArray} of the 256-bit kernels.
      * The values go out as bytes into {@code tmp} and move into {@code deq} with 256-bit loads and stores, as
-     * {@link VectorForward}'s do. The gathers of {@link #levels(float[], int, int, int, float[], int,
-     * SegmentKernels.Levels, float[], byte[], int, float[], boolean)} load their 256-bit index vectors with
-     * {@code IntVector.fromArray}, which the integer forward pass calls on 512-bit vectors: measured (2026-12-03, a
-     * JVM that ran the fused NF4 case first), the sample MLP's integer pass took 24-25 ms after the gathers and
-     * 2.3 ms after this kernel (2.4 ms in a JVM that ran no quantizer).
+     * {@link VectorForward}'s do. (Measured 2026-12-03, a JVM that ran the fused NF4 case first: the sample MLP's
+     * integer pass took 24-25 ms after the eight-lane kernel's former gathers, whose 256-bit index loads the integer
+     * pass's {@code IntVector.fromArray} profile then held, and 2.3 ms after this kernel.)
      */
     private static int levels16(float[] w, int off, int count, int m, float[] scales, int s0,
             SegmentKernels.Levels table, float[] deq, byte[] bytes, int nextCount, float[] nextAmax, double[] sqErr,
@@ -338,7 +318,7 @@ final class VectorSegments {
             int base = off + k * m;
             float sc = scales[s0 + k];
             if (!(sc >= 0x1p-100f && sc <= 0x1p100f)) { // a reciprocal near the ends of the float range
-                redo += levels(w, base, 1, m, scales, s0 + k, table, deq, bytes, 0, nextAmax, true);
+                redo += levels8(w, base, 1, m, scales, s0 + k, table, deq, bytes, 0, nextAmax);
                 if (sums) {
                     VectorLanes.segmentSums(w, deq, base, 1, m, scales, s0 + k, sqErr, sqSignal);
                 }

@@ -351,12 +351,10 @@ class SegmentKernelsTest {
             SegmentKernels.scalarLevels(w, off, count, m, scales, s0, table, deq, b, y);
             int nextCount = r.nextInt(count + 1);
             float[] ahead = new float[count];
-            // every form: the kernel the library picks (sixteen lanes with AVX-512 and m >= 16), the gather of eight
-            // 64-bit entries and the two gathers of 32-bit ones
-            int form = trial / 8 % 3;
-            boolean wide = form == 1;
+            // both forms: the kernel the library picks (sixteen lanes with AVX-512 and m >= 16) and the eight-lane one
+            int form = trial / 8 % 2;
             redone += form == 0 ? VectorSegments.levels(w, off, count, m, scales, s0, table, vdeq, vb, nextCount, ahead)
-                    : VectorSegments.levels(w, off, count, m, scales, s0, table, vdeq, vb, nextCount, ahead, wide);
+                    : VectorSegments.levels8(w, off, count, m, scales, s0, table, vdeq, vb, nextCount, ahead);
             assertAheadIsMaxAbs(w, off + count * m, nextCount, m, ahead, "trial " + trial);
             for (int i = off; i < off + count * m; i++) {
                 float sc = scales[s0 + (i - off) / m];
@@ -391,17 +389,15 @@ class SegmentKernelsTest {
             float yv = t % 2 == 0 ? (float) r.nextDouble(-1, 1)
                     : Math.nextAfter((float) (((double) lv[t % 15] + lv[t % 15 + 1]) / 2), r.nextBoolean() ? 2 : -2);
             int b = SegmentKernels.Levels.vectorBucket(yv);
-            int code = table.vectorCodes[b];
+            long entry = table.vectorEntries[b];
+            int code = (int) (entry >> 32);
             if (code >= 0) {
                 // Source: the definition, the number of midpoints (in double) strictly below the quotient.
                 assertEquals(SegmentKernels.count(table.mids, yv), code, "y " + yv);
-                assertEquals(lv[code], table.vectorLevels[b]);
-                // the one-gather table holds the same code and level
-                assertEquals(code, (int) (table.vectorEntries[b] >> 32));
-                assertEquals(Float.floatToRawIntBits(lv[code]), (int) table.vectorEntries[b]);
+                assertEquals(Float.floatToRawIntBits(lv[code]), (int) entry, "the entry holds the code's level");
                 checked++;
             } else {
-                assertTrue(table.vectorEntries[b] < 0, "a bucket the double count decides has a negative entry");
+                assertEquals(-1, code, "a bucket the double count decides has code -1: y " + yv);
             }
         }
         assertTrue(checked > 900_000, "the random quotients' buckets mostly hold one code: " + checked);

@@ -1,5 +1,7 @@
 package dev.rungbook.bench;
 
+import dev.rungbook.quant.Quantizer;
+import dev.rungbook.tensor.Tensor;
 import java.nio.file.Files;
 import java.nio.file.Path;
 import java.util.ArrayList;
@@ -32,11 +34,20 @@ import java.util.function.Function;
  * minimum, the wall-clock median, the multiply-adds per call and the load average before and after, so that
  * {@code bench/summarize.py} reads it.
  *
+ * <p>First, as a notebook would, the JVM quantizes a seeded 1024 x 1024 matrix once with each of {@link #QUANTIZERS}
+ * (unless {@code --no-quantizers}): the Vector API keeps one receiver profile per method across the library, and a
+ * quantizer kernel that touched a shape the forward passes rely on has slowed them 10-25x in such a JVM (measured
+ * 2026-12-03 for NF4's former gathers, 2026-12-04 for the eight-lane level kernel's), which a JVM that ran only the
+ * forward passes would not show. The JSON rows say {@code "quantizersFirst"}.
+ *
  * <p>Usage: {@code java [--add-modules jdk.incubator.vector] -cp bench/target/benchmarks.jar
- * dev.rungbook.bench.ForwardCpuTime OUT.json [--before OLD.jar] [--reps N]}.
+ * dev.rungbook.bench.ForwardCpuTime OUT.json [--before OLD.jar] [--reps N] [--no-quantizers]}.
  */
 public final class ForwardCpuTime {
     private static final int WARM = 20;
+    /** The specs run once before the forward passes (see the class comment). */
+    static final List<String> QUANTIZERS = List.of("int8", "int4 per-group(1,128)", "nf4", "codebook16",
+            "codebook32", "fp8-e4m3 per-channel(0)");
     private static final int LOOP = 1024;
     private static final int LOOP_REPS = 4096;
 
@@ -66,20 +77,26 @@ public final class ForwardCpuTime {
     @SuppressWarnings("unchecked")
     public static void main(String[] args) throws Exception {
         if (args.length < 1) {
-            System.err.println("usage: ForwardCpuTime OUT.json [--before OLD.jar] [--reps N]");
+            System.err.println("usage: ForwardCpuTime OUT.json [--before OLD.jar] [--reps N] [--no-quantizers]");
             System.exit(2);
         }
         Path outFile = Path.of(args[0]);
         Path before = null;
         int reps = 61;
+        boolean quantizersFirst = true;
         for (int i = 1; i < args.length; i++) {
             if (args[i].equals("--before")) {
                 before = Path.of(args[++i]);
+            } else if (args[i].equals("--no-quantizers")) {
+                quantizersFirst = false;
             } else if (args[i].equals("--reps")) {
                 reps = Integer.parseInt(args[++i]);
             } else {
                 throw new IllegalArgumentException("unknown argument " + args[i]);
             }
+        }
+        if (quantizersFirst) {
+            runQuantizers();
         }
         String loadStart = CpuTimeRuns.loadAverage();
         Path samples = samples();
@@ -159,12 +176,31 @@ public final class ForwardCpuTime {
                     + "\"mode\": \"cpu-time median\", \"threads\": 1, \"primaryMetric\": {\"score\": %.4f, "
                     + "\"scoreUnit\": \"ms/op\", \"min\": %.4f, \"wallMedian\": %.4f, \"repetitions\": %d}, "
                     + "\"macs\": %d, \"loadStart\": \"%s\", \"loadEnd\": \"%s\", \"vectorModule\": %b, "
-                    + "\"openblasThreads\": \"%s\", \"linearAlgebra\": \"%s\", \"before\": \"%s\"}", k.name(), median,
-                    t[0], wallMedian, reps, k.macs(), loadStart, loadEnd, CpuTimeRuns.vectorModule(), env,
-                    la.backend(), before == null ? "" : before.getFileName()));
+                    + "\"openblasThreads\": \"%s\", \"linearAlgebra\": \"%s\", \"before\": \"%s\", "
+                    + "\"quantizersFirst\": %b}", k.name(), median, t[0], wallMedian, reps, k.macs(), loadStart,
+                    loadEnd, CpuTimeRuns.vectorModule(), env, la.backend(),
+                    before == null ? "" : before.getFileName(), quantizersFirst));
         }
         System.out.println("(checksum " + times.sink() + "; load " + loadStart + " -> " + loadEnd + "; vector module "
                 + CpuTimeRuns.vectorModule() + "; OPENBLAS_NUM_THREADS=" + env + "; " + la.backend() + ")");
         CpuTimeRuns.writeRows(outFile, rows);
+    }
+
+    /** Quantizes a seeded 1024 x 1024 N(0, 1) matrix with each of {@link #QUANTIZERS}, a few times each. */
+    private static void runQuantizers() {
+        java.util.SplittableRandom r = new java.util.SplittableRandom(20261204);
+        float[] v = new float[1024 * 1024];
+        for (int i = 0; i < v.length; i++) {
+            v[i] = (float) r.nextGaussian();
+        }
+        Tensor t = Tensor.of(v, 1024, 1024).withName("warm-up");
+        double sink = 0;
+        for (String spec : QUANTIZERS) {
+            for (int k = 0; k < 3; k++) {
+                sink += Quantizer.parse(spec).apply(t).error().sqnrDb();
+            }
+        }
+        System.out.printf(Locale.ROOT, "quantized a 1024 x 1024 matrix first with %s (SQNR sum %.1f dB)%n",
+                QUANTIZERS, sink);
     }
 }
