@@ -187,9 +187,9 @@ final class VectorSegments {
      *
      * <p>The float quotient {@code y} picks a bucket {@code rint((y + 1) * B)} ({@code B = Levels.VECTOR_BUCKETS},
      * rounded through {@code + 1.5 * 2^23} as above; monotone in {@code y}), and each lane reads its bucket's code and
-     * level from the table's vector buckets ({@code Levels.vectorEntries}, one 64-bit entry each). A bucket that holds a
-     * midpoint's float neighbour has code -1, and its lanes are counted as the definition says, in double. With
-     * AVX-512 and tables that allow it, the sixteen-lane kernel {@link #levels16} runs instead.
+     * level from the table's vector buckets ({@code Levels.vectorEntries}, one 64-bit entry each). A bucket that
+     * holds a midpoint's float neighbour has code -1, and its lanes are counted as the definition says, in double.
+     * With AVX-512 and tables that allow it, the sixteen-lane kernel {@link #levels16} runs instead.
      * {@code nextCount} and {@code nextAmax} as for {@link #linear}.
      */
     static int levels(float[] w, int off, int count, int m, float[] scales, int s0, SegmentKernels.Levels table,
